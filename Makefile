@@ -1,0 +1,37 @@
+# Set-up and everyday commands. `make demo` and `make test` are all a new machine needs.
+PYTHON ?= python3
+VENV := .venv
+BIN := $(VENV)/bin
+
+.PHONY: demo test install install-test browser bench demo-data clean
+
+$(BIN)/python:
+	$(PYTHON) -m venv $(VENV)
+	$(BIN)/pip install --quiet --upgrade pip
+
+install: $(BIN)/python
+	$(BIN)/pip install --quiet -e .
+
+install-test: $(BIN)/python
+	$(BIN)/pip install --quiet -e ".[test]"
+
+# Debian's Chromium for the report's browser test (skipped when it cannot be installed).
+browser:
+	@command -v chromium >/dev/null 2>&1 || { \
+	  (apt-get update -qq && DEBIAN_FRONTEND=noninteractive apt-get install -y -qq chromium >/dev/null) \
+	  || echo "note: chromium not installed; browser tests will be skipped"; }
+
+demo: install
+	$(BIN)/cosmogrow demo --out demo_results
+
+test: install-test browser
+	$(BIN)/python -m pytest -q -ra
+
+bench: install
+	$(BIN)/python analysis/bench_likelihood.py
+
+demo-data: install
+	$(BIN)/python analysis/make_demo_data.py
+
+clean:
+	rm -rf $(VENV) demo_results .pytest_cache

@@ -1,0 +1,78 @@
+"""Benchmark of issue 3: the selection-aware likelihood against the plain one, and the simulator.
+
+Targets: selection-aware likelihood <= 2x the plain one; simulating 10^6 hosts with selection <= 2 s.
+The likelihood is the fit's own (cosmogrow.model), evaluated for 32 walkers at once.
+Run: .venv/bin/python analysis/bench_selection.py
+"""
+
+import time
+
+import numpy as np
+from astropy.cosmology import Planck18
+
+from cosmogrow.catalog import Catalog
+from cosmogrow.config import ModelOptions
+from cosmogrow.model import CoupledGrowthModel, build_design
+from cosmogrow.selection import SelectionSet
+from cosmogrow.simulate import simulate_population
+
+SELECTIONS = {
+    "observed mass cut (far)": {"far": {"kind": "mass_cut", "log_mbh_min": 8.0}},
+    "flux limit (far)": {"far": {"kind": "flux_limit", "flux_limit": 1e-13}},
+    "SOI (near) + flux (far)": {"near": {"kind": "sphere_of_influence"},
+                                "far": {"kind": "flux_limit", "flux_limit": 1e-13}},
+    "flux x observed cut (far), two cuts": {"far": [{"kind": "flux_limit", "flux_limit": 1e-13},
+                                                    {"kind": "mass_cut", "log_mbh_min": 8.0, "width": 0.1}]},
+}
+
+
+def make_catalog(n, seed=0):
+    rng = np.random.default_rng(seed)
+    z = np.where(rng.random(n) < 0.5, rng.uniform(0.005, 0.05, n), rng.uniform(0.5, 2.0, n))
+    s = rng.normal(11.0, 0.3, n)
+    m_err = rng.uniform(0.05, 0.3, n)
+    m = 8.5 + (s - 11.0) + rng.normal(0, 0.3, n) + rng.normal(0, m_err)
+    return Catalog.from_columns(z=z, log_mbh=m, log_mbh_err=m_err, log_mstar=s, log_mstar_err=np.full(n, 0.1),
+                                sample=np.where(z < 0.1, "near", "far"), method="dynamical")
+
+
+def best_of(fn, repeat=30):
+    times = []
+    for _ in range(repeat):
+        t0 = time.process_time()
+        fn()
+        times.append(time.process_time() - t0)
+    return min(times)
+
+
+def likelihood_ratios(n=1000, walkers=32):
+    catalog = make_catalog(n)
+    options = ModelOptions(form="ratio")
+    design = build_design(catalog, options)
+    plain = CoupledGrowthModel(design, options)
+    theta = np.tile(plain.initial_guess(), (walkers, 1))
+    theta = theta + 1e-3 * np.random.default_rng(1).standard_normal(theta.shape)
+    t_plain = best_of(lambda: plain.log_likelihood(theta))
+    print(f"plain likelihood, N = {n}, {walkers} walkers: {t_plain * 1e3:.3f} ms")
+    for name, selections in SELECTIONS.items():
+        model = CoupledGrowthModel(design, options, selection=SelectionSet.compile(selections, catalog, Planck18))
+        t_sel = best_of(lambda: model.log_likelihood(theta))
+        print(f"  {name:38s}: {t_sel * 1e3:.3f} ms = {t_sel / t_plain:.2f}x plain (target <= 2x)")
+
+
+def simulator_speed():
+    selection = [{"kind": "flux_limit", "flux_limit": 1e-13}, {"kind": "host_mass_cut", "log_mstar_min": 10.5}]
+    base = {"name": "far", "z_range": [0.5, 2.0], "method": "virial", "selection": selection}
+    simulate_population({"seed": 1, "sample": [{**base, "n": 1000}]})  # warm up (astropy realisation)
+    for n in (420_000, 1_000_000):
+        t0 = time.perf_counter()
+        _, truth = simulate_population({"seed": 1, "sample": [{**base, "n": n}]})
+        seconds = time.perf_counter() - t0
+        info = truth["samples"][0]
+        print(f"simulate: {info['n_candidates']:.3g} hosts drawn, {n} selected "
+              f"(acceptance {info['acceptance']:.3f}): {seconds:.2f} s")
+
+
+if __name__ == "__main__":
+    likelihood_ratios()
+    simulator_speed()

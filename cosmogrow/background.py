@@ -1,0 +1,156 @@
+"""The cosmological background, from astropy.
+
+Units are accepted at this edge; the functions return plain float arrays in the units their
+names state (Mpc, cm, Gyr, Mpc^3 sr^-1), so the numerical core never handles Quantities.
+"""
+
+import numpy as np
+from astropy import cosmology as _cosmo
+from astropy import units as u
+
+from .errors import ConfigError
+
+DEFAULT_COSMOLOGY = "Planck18"
+
+_PARAMETRIC = {
+    "LambdaCDM": ("H0", "Om0", "Ode0"),
+    "FlatLambdaCDM": ("H0", "Om0"),
+    "w0waCDM": ("H0", "Om0", "Ode0", "w0", "wa"),
+    "Flatw0waCDM": ("H0", "Om0", "w0", "wa"),
+    "wCDM": ("H0", "Om0", "Ode0", "w0"),
+    "FlatwCDM": ("H0", "Om0", "w0"),
+}
+_OPTIONAL = ("Tcmb0", "Neff", "Ob0", "m_nu")
+
+
+def available_realisations():
+    """Names of astropy's built-in cosmology realisations (Planck18, WMAP9, ...)."""
+    return tuple(_cosmo.realizations.available)
+
+
+def get_cosmology(spec=None):
+    """Build an astropy cosmology.
+
+    Parameters
+    ----------
+    spec : None, str, dict or astropy Cosmology
+        None gives Planck18. A string names a realisation. A dict either has ``name`` (a
+        realisation) or ``model`` (one of LambdaCDM, FlatLambdaCDM, wCDM, FlatwCDM, w0waCDM,
+        Flatw0waCDM) with its parameters: H0 in km/s/Mpc, Om0, Ode0, w0, wa, and optionally
+        Tcmb0 (K), Neff, Ob0, m_nu (eV). Without ``model``, a dict with Ode0 is LambdaCDM
+        (w0waCDM when w0 or wa is given), without Ode0 it is flat.
+    """
+    if spec is None:
+        spec = DEFAULT_COSMOLOGY
+    if isinstance(spec, _cosmo.Cosmology):
+        return spec
+    if isinstance(spec, str):
+        return _realisation(spec)
+    if not isinstance(spec, dict):
+        raise ConfigError(f"cosmology: expected a name or a table, got {spec!r}")
+    if "name" in spec:
+        extra = set(spec) - {"name"}
+        if extra:
+            raise ConfigError(f"cosmology: 'name' cannot be combined with {sorted(extra)}")
+        return _realisation(spec["name"])
+    return _parametric(dict(spec))
+
+
+def _realisation(name):
+    valid = available_realisations()
+    if name not in valid:
+        raise ConfigError(f"cosmology: unknown realisation {name!r}; expected one of {', '.join(valid)}")
+    return getattr(_cosmo, name)
+
+
+def _parametric(spec):
+    model = spec.pop("model", None)
+    if model is None:
+        dark = "w0waCDM" if ("w0" in spec or "wa" in spec) else "LambdaCDM"
+        model = dark if "Ode0" in spec else "Flat" + dark
+    if model not in _PARAMETRIC:
+        raise ConfigError(f"cosmology: unknown model {model!r}; expected one of {', '.join(_PARAMETRIC)}")
+    required = _PARAMETRIC[model]
+    missing = [p for p in required if p not in spec]
+    if missing:
+        raise ConfigError(f"cosmology: model {model} needs {', '.join(missing)}")
+    unknown = set(spec) - set(required) - set(_OPTIONAL)
+    if unknown:
+        raise ConfigError(f"cosmology: unknown parameter(s) {sorted(unknown)} for model {model}")
+    kwargs = {}
+    for key, value in spec.items():
+        if key == "m_nu":
+            value = np.atleast_1d(value) * u.eV
+        elif key == "H0":
+            value = float(value) * u.km / u.s / u.Mpc
+        elif key == "Tcmb0":
+            value = float(value) * u.K
+        kwargs[key] = value
+    try:
+        return getattr(_cosmo, model)(**kwargs)
+    except (TypeError, ValueError) as exc:
+        raise ConfigError(f"cosmology: {exc}") from None
+
+
+def scale_factor(z):
+    """a = 1 / (1 + z)."""
+    return 1.0 / (1.0 + np.asarray(z, dtype=float))
+
+
+def age_gyr(cosmo, z):
+    """Age of the Universe at redshift z, Gyr."""
+    return np.asarray(cosmo.age(z).to_value(u.Gyr))
+
+
+def lookback_gyr(cosmo, z):
+    """Lookback time to redshift z, Gyr."""
+    return np.asarray(cosmo.lookback_time(z).to_value(u.Gyr))
+
+
+def luminosity_distance_mpc(cosmo, z):
+    """Luminosity distance d_L, Mpc."""
+    return np.asarray(cosmo.luminosity_distance(z).to_value(u.Mpc))
+
+
+def luminosity_distance_cm(cosmo, z):
+    """Luminosity distance d_L, cm."""
+    return np.asarray(cosmo.luminosity_distance(z).to_value(u.cm))
+
+
+def angular_diameter_distance_mpc(cosmo, z):
+    """Angular-diameter distance D_A, Mpc."""
+    return np.asarray(cosmo.angular_diameter_distance(z).to_value(u.Mpc))
+
+
+def comoving_distance_mpc(cosmo, z):
+    """Line-of-sight comoving distance D_C, Mpc."""
+    return np.asarray(cosmo.comoving_distance(z).to_value(u.Mpc))
+
+
+def comoving_volume_element(cosmo, z):
+    """Differential comoving volume dV_c/dz/dOmega, Mpc^3 sr^-1."""
+    return np.asarray(cosmo.differential_comoving_volume(z).to_value(u.Mpc**3 / u.sr))
+
+
+def redshift_at_age(cosmo, age):
+    """Redshift at which the Universe had the given age (Gyr); array-valued."""
+    from astropy.cosmology import z_at_value
+
+    ages = np.atleast_1d(np.asarray(age, dtype=float))
+    grid_z = np.geomspace(1e-5, 1e3, 4000)
+    grid_age = age_gyr(cosmo, grid_z)
+    out = np.interp(ages, grid_age[::-1], grid_z[::-1])
+    if np.ndim(age) == 0:
+        return float(z_at_value(cosmo.age, float(ages[0]) * u.Gyr, zmin=1e-8, zmax=1e4).value)
+    return out
+
+
+def describe(cosmo):
+    """A short JSON-friendly description of a cosmology."""
+    desc = {"name": cosmo.name or type(cosmo).__name__, "class": type(cosmo).__name__,
+            "H0": float(cosmo.H0.to_value(u.km / u.s / u.Mpc)), "Om0": float(cosmo.Om0),
+            "Ode0": float(cosmo.Ode0), "Tcmb0": float(cosmo.Tcmb0.to_value(u.K))}
+    for key in ("w0", "wa"):
+        if hasattr(cosmo, key):
+            desc[key] = float(getattr(cosmo, key))
+    return desc

@@ -1,0 +1,56 @@
+"""The command line. The only module that reads argv, prints for the user or sets exit codes.
+
+Each subcommand lives in `cosmogrow.commands.<name>` and exposes ``register(subparsers)``, which
+adds its parser and sets ``run`` (a function of the parsed arguments returning an exit code).
+"""
+
+import argparse
+import importlib
+import sys
+
+from . import __version__
+from .errors import CosmogrowError
+
+# Exit codes, documented in the README.
+EXIT_OK = 0
+EXIT_BAD_INPUT = 2
+EXIT_NOT_CONVERGED = 3
+
+COMMANDS = ("fit", "simulate", "inject", "nulltest", "challenge", "budget", "remnants", "report", "demo")
+
+
+def build_parser():
+    parser = argparse.ArgumentParser(
+        prog="cosmogrow",
+        description="Measure and calibrate coupled black-hole growth, M_BH ∝ a^k.")
+    parser.add_argument("--version", action="version", version=f"cosmogrow {__version__}")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND")
+    for name in COMMANDS:
+        try:
+            module = importlib.import_module(f".commands.{name}", __package__)
+        except ModuleNotFoundError as exc:
+            if exc.name == f"{__package__}.commands.{name}":
+                continue  # command not built yet
+            raise
+        module.register(sub)
+    return parser
+
+
+def main(argv=None):
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    if not getattr(args, "run", None):
+        parser.print_help()
+        return EXIT_BAD_INPUT
+    try:
+        return int(args.run(args) or EXIT_OK)
+    except CosmogrowError as exc:
+        print(f"cosmogrow {args.command}: error: {exc}", file=sys.stderr)
+        return EXIT_BAD_INPUT
+    except KeyboardInterrupt:
+        print(f"cosmogrow {args.command}: interrupted", file=sys.stderr)
+        return 130
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())

@@ -1,0 +1,151 @@
+"""A fit from configuration to results: read, build the model, MAP, MCMC, summary.
+
+Nothing here prints or draws; the fit command writes the files and the report layer the plots.
+"""
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from . import background
+from .catalog import Catalog
+from .catalog_io import read_catalog
+from .crosscheck import crosscheck_warnings, run_crosscheck
+from .errors import ConfigError, InputError
+from .estimate import laplace, start_walkers
+from .model import CoupledGrowthModel, build_design
+from .outputs import package_versions, sha256_file
+from .sampler import default_walkers, run_ensemble
+from .seeding import make_rng
+from .selection import SelectionSet, build_selection
+from .summary import (convergence_block, degeneracy_warnings, describe_parameters,
+                      describe_samples, hypothesis_tests, offset_sensitivity)
+
+
+@dataclass(frozen=True, eq=False)
+class FitData:
+    """Catalogue, per-file provenance and compiled selection of a run."""
+
+    catalog: Catalog
+    files: list
+    selections: dict   # sample name -> list of selection models
+    cosmology: object
+
+
+@dataclass(frozen=True, eq=False)
+class FitResult:
+    """Everything a fit produced."""
+
+    model: CoupledGrowthModel
+    laplace: object
+    chain: object
+    summary: dict
+
+
+def load_data(config):
+    """Read every sample's catalogue and its selection; duplicate ids across files are an error."""
+    if not config.samples:
+        raise ConfigError(f"{config.source}: no catalogues given (list them on the command line "
+                          "or as [[sample]] tables)")
+    cosmology = background.get_cosmology(config.cosmology)
+    catalogs, files, selections, seen = [], [], {}, {}
+    for spec in config.samples:
+        catalog, dropped = read_catalog(spec.path, sample=spec.name, column_map=spec.columns or None,
+                                        drop_invalid=spec.drop_invalid, default_method=spec.method)
+        for row, obj_id in enumerate(catalog.ids, start=1):
+            if obj_id in seen:
+                raise InputError(spec.path, f"duplicate id, also in {seen[obj_id]}", row=row,
+                                 column="id", value=obj_id)
+        seen.update({obj_id: f"{spec.path}" for obj_id in catalog.ids})
+        names = catalog.sample_names
+        models = list(build_selection(list(spec.selection), where=f"sample '{names[0]}'"))
+        for name in names:
+            if name in selections and selections[name] != models:
+                raise ConfigError(f"sample '{name}' appears in two files with different selections")
+            selections[name] = models
+        catalogs.append(catalog)
+        files.append({"path": str(spec.path), "sha256": sha256_file(spec.path), "rows": len(catalog),
+                      "samples": list(names), "dropped": dropped})
+    return FitData(catalog=Catalog.concat(catalogs), files=files, selections=selections,
+                   cosmology=cosmology)
+
+
+def build_model(config, data, *, selection_aware=True, catalog=None):
+    """The posterior of a run; `catalog` replaces the data's rows (mocks of the same design)."""
+    catalog = data.catalog if catalog is None else catalog
+    design = build_design(catalog, config.model)
+    selection = None
+    if selection_aware and any(data.selections.values()):
+        selection = SelectionSet.compile(data.selections, catalog, data.cosmology)
+    return CoupledGrowthModel(design, config.model, config.priors, selection)
+
+
+def run_fit(config, data, *, chain_path=None, on_check=None, selection_aware=True):
+    """MAP, Laplace, MCMC and the summary of one run.
+
+    Returns
+    -------
+    FitResult
+    """
+    model = build_model(config, data, selection_aware=selection_aware)
+    seed = np.random.SeedSequence(config.seed)
+    walker_seed, sampler_seed = seed.spawn(2)
+    approx = laplace(model)
+    n_walkers = default_walkers(model.ndim, config.sampler.walkers)
+    start = start_walkers(model, approx, n_walkers, make_rng(walker_seed))
+    chain = run_ensemble(model.log_prob, start, max_steps=config.sampler.max_steps,
+                         autocorr_factor=config.sampler.autocorr_factor,
+                         check_every=config.sampler.check_every, chain_path=chain_path,
+                         seed=sampler_seed, on_check=on_check)
+    summary = summarise(config, data, model, approx, chain)
+    return FitResult(model=model, laplace=approx, chain=chain, summary=summary)
+
+
+def summarise(config, data, model, approx, chain):
+    """The summary.json content of a fit."""
+    warnings = degeneracy_warnings(model, data.catalog, approx)
+    if not chain.converged:
+        warnings.insert(0, f"the chain did not converge: {chain.n_steps} steps is "
+                           f"{chain.n_steps / chain.tau_max:.1f} autocorrelation times, "
+                           f"{config.sampler.autocorr_factor:g} required")
+    if not model.selection and any(data.selections.values()):
+        warnings.append("selection is declared but not modelled in this fit (plain likelihood)")
+    if not any(data.selections.values()):
+        warnings.append("no selection is declared for any sample: k is only as good as the "
+                        "assumption that the samples were not selected on black-hole mass")
+    k_summary = describe_samples(chain.samples[:, model.index_k])
+    crosscheck = run_crosscheck(config, data.catalog)
+    warnings += crosscheck_warnings(crosscheck, k_summary)
+    return {
+        "k": k_summary,
+        "tests": hypothesis_tests(model, chain, approx),
+        "convergence": convergence_block(chain, config.sampler.autocorr_factor),
+        "parameters": describe_parameters(model.names, chain.samples),
+        "map": {"theta": dict(zip(model.names, approx.theta)), "log_prob": approx.log_prob,
+                "laplace_std": dict(zip(model.names, approx.std))},
+        "degeneracy": {"offset_prior_sensitivity": offset_sensitivity(model, approx)},
+        "selection": {"corrected": model.selection is not None,
+                      "samples": {name: [m.to_dict() for m in models]
+                                  for name, models in data.selections.items()}},
+        "crosscheck": crosscheck,
+        "warnings": warnings,
+        "data": data_overview(data.catalog),
+        "inputs": data.files,
+        "cosmology": background.describe(data.cosmology),
+        "config": config.to_dict(),
+        "seed": config.seed,
+        "versions": package_versions(),
+    }
+
+
+def data_overview(catalog):
+    """Per-sample counts, redshift and mass ranges, methods."""
+    rows = {}
+    for name in catalog.sample_names:
+        sel = catalog.sample == name
+        rows[name] = {"n": int(sel.sum()), "z_median": float(np.median(catalog.z[sel])),
+                      "z_range": [float(catalog.z[sel].min()), float(catalog.z[sel].max())],
+                      "log_mbh_median": float(np.median(catalog.log_mbh[sel])),
+                      "log_mstar_median": float(np.median(catalog.log_mstar[sel])),
+                      "methods": sorted(set(catalog.method[sel].tolist()))}
+    return rows

@@ -1,0 +1,129 @@
+"""Normal probabilities in log space, fast enough for a likelihood over walkers × objects.
+
+`log_phi` is log Φ(x). scipy's `log_ndtr` is exact but costs ~20-40 ns per element, several times
+a whole plain Gaussian log-likelihood; `log_phi` evaluates a piecewise-cubic (Hermite) table of
+`log_ndtr` and its exact derivative on a grid of step 1/64 over [-40, 10] (absolute error < 1e-10,
+tested against `log_ndtr`; C1-continuous, so optimisers see a smooth function). Below -40 it calls
+`log_ndtr` itself; above 10, log Φ > -1e-23 and the table's last value is used.
+
+`log_upper_orthant` is log P(X > h, Y > k) for a standard bivariate normal with correlation
+0 <= rho <= 1, from Plackett's identity d Φ2 / d rho = φ2 integrated by Gauss-Legendre quadrature:
+with 12 or 20 nodes by the largest correlation: from rho = 0 (Φ(-h) Φ(-k) + a positive
+integral: no cancellation) when rho < 0.925, and from
+rho = 1 (Φ(-max(h, k)) minus a positive integral) above, the split used by Genz (2004, Statistics
+and Computing 14, 251) for the bivariate normal. Results are clipped to the bounds that hold for
+rho >= 0 (Slepian): Φ(-h) Φ(-k) <= P <= min(Φ(-h), Φ(-k)), so far-tail values stay finite.
+"""
+
+import numpy as np
+from scipy.special import log_ndtr, roots_legendre
+
+_LO, _HI, _STEP = -40.0, 10.0, 1.0 / 64.0
+_RHO_SWITCH = 0.925
+# Gauss-Legendre orders by the largest correlation in a call (12 nodes keep far tails exact)
+_ORDERS = ((0.5, 12), (1.0, 20))
+
+
+def _hermite_table():
+    grid = np.arange(_LO, _HI + 0.5 * _STEP, _STEP)
+    value = log_ndtr(grid)
+    # d/dx log Φ = φ / Φ, evaluated in logs so the far tail does not overflow
+    slope = np.exp(-0.5 * grid**2 - 0.5 * np.log(2.0 * np.pi) - value) * _STEP
+    f0, f1, d0, d1 = value[:-1], value[1:], slope[:-1], slope[1:]
+    coef = np.stack([f0, d0, 3.0 * (f1 - f0) - 2.0 * d0 - d1, 2.0 * (f0 - f1) + d0 + d1])
+    return np.ascontiguousarray(coef), len(grid) - 1
+
+
+_COEF, _N_CELLS = _hermite_table()
+_GAUSS_LEGENDRE = {order: roots_legendre(order) for _, order in _ORDERS}
+
+
+def log_phi(x):
+    """log Φ(x), the log of the standard normal CDF, for any array (see the module note).
+
+    Parameters
+    ----------
+    x : array_like
+
+    Returns
+    -------
+    ndarray of the same shape (a float for a scalar input).
+    """
+    x = np.asarray(x, dtype=float)
+    scalar = x.ndim == 0
+    x = np.atleast_1d(x)
+    t = (x - _LO) * (1.0 / _STEP)
+    np.clip(t, 0.0, _N_CELLS - 1e-9, out=t)
+    cell = t.astype(np.intp)
+    u = t - cell
+    out = _COEF[3].take(cell, mode="clip")
+    for power in (2, 1, 0):
+        out *= u
+        out += _COEF[power].take(cell, mode="clip")
+    low = x < _LO
+    if low.any():
+        out[low] = log_ndtr(x[low])
+    return float(out[0]) if scalar else out
+
+
+def log_upper_orthant(h, k, rho):
+    """log P(X > h, Y > k) for standard normals X, Y with correlation rho in [0, 1].
+
+    Parameters
+    ----------
+    h, k, rho : array_like, broadcast together
+
+    Returns
+    -------
+    ndarray of the broadcast shape.
+    """
+    h, k, rho = np.broadcast_arrays(np.asarray(h, dtype=float), np.asarray(k, dtype=float),
+                                    np.clip(np.asarray(rho, dtype=float), 0.0, 1.0))
+    shape = h.shape
+    h, k, rho = h.ravel(), k.ravel(), rho.ravel()
+    log_h, log_k = log_phi(-h), log_phi(-k)
+    out = np.empty(h.shape)
+    high = rho >= _RHO_SWITCH
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        low = ~high
+        if low.any():
+            out[low] = _from_independent(h[low], k[low], rho[low], log_h[low] + log_k[low])
+        if high.any():
+            out[high] = _from_identical(h[high], k[high], rho[high],
+                                        np.minimum(log_h[high], log_k[high]))
+    out = np.nan_to_num(out, nan=-np.inf)
+    out = np.clip(out, log_h + log_k, np.minimum(log_h, log_k))
+    return out.reshape(shape)
+
+
+def _nodes(upper, rho):
+    """Gauss-Legendre nodes and log weights on [0, upper] (upper: 1-d array); shape (n, nodes)."""
+    order = next(order for bound, order in _ORDERS if np.max(rho) < bound or bound == 1.0)
+    nodes, weights = _GAUSS_LEGENDRE[order]
+    half = 0.5 * upper[:, None]
+    return half * (nodes + 1.0), np.log(half * weights)
+
+
+def _logsumexp_rows(terms):
+    top = np.max(terms, axis=1)
+    top = np.where(np.isfinite(top), top, 0.0)
+    return top + np.log(np.sum(np.exp(terms - top[:, None]), axis=1))
+
+
+def _from_independent(h, k, rho, log_product):
+    """Φ(-h)Φ(-k) + (1/2π) ∫_0^asin(rho) exp(-(h²-2hk sinθ+k²)/(2cos²θ)) dθ, in logs."""
+    theta, log_w = _nodes(np.arcsin(rho), rho)
+    hh, kk = h[:, None], k[:, None]
+    exponent = -(hh**2 - 2.0 * hh * kk * np.sin(theta) + kk**2) / (2.0 * np.cos(theta) ** 2)
+    log_integral = _logsumexp_rows(exponent + log_w) - np.log(2.0 * np.pi)
+    return np.logaddexp(log_product, log_integral)
+
+
+def _from_identical(h, k, rho, log_min):
+    """Φ(-max(h,k)) - (1/2π) ∫_0^acos(rho) exp(-(h-k)²/(2sin²θ) - hk/(1+cosθ)) dθ, in logs."""
+    theta, log_w = _nodes(np.arccos(rho), np.array([1.0]))
+    hh, kk = h[:, None], k[:, None]
+    exponent = -((hh - kk) ** 2) / (2.0 * np.sin(theta) ** 2) - hh * kk / (1.0 + np.cos(theta))
+    log_integral = _logsumexp_rows(exponent + log_w) - np.log(2.0 * np.pi)
+    ratio = np.minimum(np.exp(log_integral - log_min), 1.0)
+    return log_min + np.log1p(-ratio)

@@ -1,0 +1,1 @@
+"""Figures and reports drawn from results (the only layer that imports matplotlib)."""

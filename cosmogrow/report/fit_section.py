@@ -1,0 +1,276 @@
+"""The web report's parts for a fit: the headline card of k, its warnings and its tables.
+
+Reads a fit's summary.json (see `cosmogrow.fit.summarise`) defensively: every block is optional.
+"""
+
+import re
+
+from .htmlkit import (Cell, Markup, as_float, definition_list, dig, esc, fmt, fmt_interval, fmt_p,
+                      join, pill, table, tag)
+
+_GREEK = {"alpha": "α", "beta": "β", "gamma": "γ", "delta": "δ", "sigma": "σ", "tau": "τ"}
+_NAME = re.compile(r"^(?P<base>[A-Za-z]+)(?:_(?P<sub>[A-Za-z0-9]+))?(?:\[(?P<tag>.*)\])?$")
+
+
+def parameter_label(name):
+    """HTML label of a model parameter: Greek letters, subscripts, the bracket tag escaped.
+
+    ``sigma_int[local]`` becomes σ<sub>int</sub>[local]; unknown forms are shown escaped as given.
+    """
+    match = _NAME.match(str(name))
+    if not match:
+        return esc(name)
+    base = _GREEK.get(match["base"], match["base"])
+    label = tag("var", base) if len(base) == 1 else esc(base)
+    if match["sub"]:
+        label += tag("sub", match["sub"])
+    if match["tag"] is not None:
+        label += join(["[", match["tag"], "]"])
+    return Markup(label)
+
+
+def k_text(k):
+    """'1.19 +0.51 −0.54' style Markup of a k block (median and 68 % interval)."""
+    median = as_float(dig(k, "median"))
+    lo, hi = (as_float(dig(k, "interval68", i)) for i in (0, 1))
+    if median is None:
+        return esc("–")
+    if lo is None or hi is None:
+        return esc(fmt(median, 2))
+    return Markup(f'{esc(fmt(median, 2))}<span class="pm"><sup>{esc(fmt(hi - median, 2, signed=True))}'
+                  f'</sup><sub>{esc(fmt(lo - median, 2, signed=True))}</sub></span>')
+
+
+def is_selection_aware(summary):
+    return dig(summary, "selection", "corrected")
+
+
+def selection_declared(summary):
+    """True when any sample of the fit declares a selection."""
+    samples = dig(summary, "selection", "samples")
+    return isinstance(samples, dict) and any(bool(models) for models in samples.values())
+
+
+def fit_kind_label(summary):
+    aware = is_selection_aware(summary)
+    if aware is True:
+        return "selection-aware fit"
+    if aware is False:
+        return "plain fit (declared selection ignored)" if selection_declared(summary) else "plain fit"
+    return "fit"
+
+
+def status_pills(summary):
+    """Convergence and selection status as labels."""
+    pills = []
+    converged = dig(summary, "convergence", "converged")
+    if converged is True:
+        pills.append(pill("converged", "good"))
+    elif converged is False:
+        pills.append(pill("NOT converged", "bad"))
+    aware = is_selection_aware(summary)
+    if aware is True:
+        pills.append(pill("selection modelled", "info"))
+    elif aware is False and selection_declared(summary):
+        pills.append(pill("declared selection NOT modelled", "bad"))
+    elif aware is False:
+        pills.append(pill("no selection declared", "warn"))
+    form = dig(summary, "config", "model", "form")
+    if form:
+        pills.append(pill(f"{form} form", "muted"))
+    return join(pills, " ")
+
+
+def fit_card(label, summary, anchor, n_warnings=0):
+    """The headline card of one fit: k, intervals, significance, status and its count of warnings."""
+    k = dig(summary, "k", default={})
+    tests = dig(summary, "tests", default={})
+    facts = [
+        ("68 % interval", fmt_interval(dig(k, "interval68"), 2)),
+        ("95 % interval", fmt_interval(dig(k, "interval95"), 2)),
+        ("P(k ≤ 0 | data)", fmt_p(dig(tests, "p_k_le_0"))),
+        ("against k = 0", _sigma(dig(tests, "sigma_vs_k0"))),
+        ("against k = 3", _sigma(dig(tests, "sigma_vs_k3"))),
+        ("Bayes factor B₀₁", fmt(dig(tests, "bayes_factor_k0"), 3)),
+    ]
+    heading = tag("a", label, href=f"#{anchor}", cls="card-link")
+    pills = status_pills(summary)
+    if n_warnings:
+        pills += " " + tag("a", f"{n_warnings} warning{'s' if n_warnings != 1 else ''}", href="#warnings",
+                           cls="pill pill-bad")
+    main = (tag("p", fit_kind_label(summary) + " · " + heading, cls="kicker")
+            + tag("p", Markup('<var>k</var> = ') + k_text(k), cls="k-value")
+            + tag("p", pills, cls="pills"))
+    body = tag("div", main, cls="card-main") + definition_list(facts)
+    return tag("article", body, cls="card card-fit")
+
+
+def _sigma(value):
+    number = as_float(value)
+    return "–" if number is None else f"{fmt(number, 2)} σ (profile likelihood)"
+
+
+def fit_warnings(summary):
+    """Every warning of the fit: its own list, plus non-convergence and unmodelled selection."""
+    own = [str(w) for w in dig(summary, "warnings", default=[]) or [] if w]
+    text = " ".join(own).lower()
+    derived = []
+    conv = dig(summary, "convergence", default={})
+    if dig(conv, "converged") is False and "converge" not in text:
+        derived.append(f"the chain did not converge ({fmt(dig(conv, 'n_steps'))} steps, "
+                       f"{fmt(dig(conv, 'chain_over_tau'), 1)} autocorrelation times)")
+    if is_selection_aware(summary) is False and "selection" not in text:
+        derived.append("selection is not modelled in this fit")
+    crosscheck = dig(summary, "crosscheck", default={})
+    for key in ("warning", "warnings"):
+        value = dig(crosscheck, key)
+        if isinstance(value, str) and value:
+            derived.append(f"cross-check: {value}")
+        elif isinstance(value, list):
+            derived.extend(f"cross-check: {item}" for item in value if item)
+    return derived + own
+
+
+def _selection_text(models):
+    if not isinstance(models, list) or not models:
+        return "none declared"
+    parts = []
+    for model in models:
+        if isinstance(model, dict):
+            kind = model.get("kind", "selection")
+            options = ", ".join(f"{key} = {value}" for key, value in model.items() if key != "kind")
+            parts.append(f"{kind} ({options})" if options else str(kind))
+        else:
+            parts.append(str(model))
+    return "; ".join(parts)
+
+
+def data_table(summary, number):
+    """Per-sample overview from summary['data'], with each sample's declared selection."""
+    data = dig(summary, "data")
+    if not isinstance(data, dict) or not data:
+        return Markup("")
+    selections = dig(summary, "selection", "samples", default={})
+    rows = []
+    for name, row in data.items():
+        row = row if isinstance(row, dict) else {}
+        methods = row.get("methods")
+        rows.append([name, fmt(row.get("n")), fmt(row.get("z_median")), fmt_interval(row.get("z_range")),
+                     fmt(row.get("log_mbh_median"), 2), fmt(row.get("log_mstar_median"), 2),
+                     Cell(", ".join(map(str, methods)) if isinstance(methods, list) else fmt(methods), "text"),
+                     Cell(_selection_text(dig(selections, name)), "text")])
+    return table(["sample", "N", "median z", "z range", "median log M_BH", "median log M_*",
+                  "mass methods", "selection"], rows, number=number, numeric=range(1, 6),
+                 caption="The data: objects per sample, redshifts, median masses (log₁₀ M☉), "
+                         "mass methods and declared selection.")
+
+
+def parameter_table(summary, number):
+    params = dig(summary, "parameters")
+    if not isinstance(params, dict) or not params:
+        return Markup("")
+    rows = []
+    for name, row in params.items():
+        rows.append([parameter_label(name), fmt(dig(row, "median")), fmt_interval(dig(row, "interval68")),
+                     fmt_interval(dig(row, "interval95")), fmt(dig(summary, "map", "theta", name)),
+                     fmt(dig(summary, "map", "laplace_std", name))])
+    return table(["parameter", "median", "68 % interval", "95 % interval", "MAP", "Laplace σ"], rows,
+                 number=number, caption="Posterior of every parameter (central intervals of the MCMC draws).")
+
+
+def tests_table(summary, number):
+    tests = dig(summary, "tests")
+    if not isinstance(tests, dict):
+        return Markup("")
+    method = dig(tests, "bayes_factor_method")
+    rows = [["P(k ≤ 0 | data)", fmt_p(tests.get("p_k_le_0")), "posterior fraction of draws with k ≤ 0"],
+            ["k = 0 against the best fit", _sigma(tests.get("sigma_vs_k0")),
+             "Wilks equivalent of the profile-likelihood ratio"],
+            ["k = 3 against the best fit", _sigma(tests.get("sigma_vs_k3")),
+             "Wilks equivalent of the profile-likelihood ratio"],
+            ["Savage–Dickey B₀₁ (k = 0 : free k)", fmt(tests.get("bayes_factor_k0")),
+             f"> 1 favours k = 0; log₁₀ B₀₁ = {fmt(tests.get('log10_bayes_factor_k0'), 2)}"
+             + (f"; density from {method}" if method else "")]]
+    return table(["test", "value", "meaning"], [[a, b, Cell(c, "text")] for a, b, c in rows],
+                 number=number, numeric=[1], caption="Hypothesis tests on k.")
+
+
+def convergence_table(summary, number):
+    conv = dig(summary, "convergence")
+    if not isinstance(conv, dict):
+        return Markup("")
+    converged = conv.get("converged")
+    state = Cell("yes" if converged else ("NO" if converged is False else "–"),
+                 "good" if converged else ("bad" if converged is False else None))
+    rows = [["converged", state], ["steps", fmt(conv.get("n_steps"))],
+            ["walkers", fmt(conv.get("n_walkers"))],
+            ["longest autocorrelation time τ (steps)", fmt(conv.get("tau_max"), 1)],
+            ["chain length / τ (required)",
+             f"{fmt(conv.get('chain_over_tau'), 1)} ({fmt(conv.get('required_chain_over_tau'), 0)})"],
+            ["acceptance fraction", fmt(conv.get("acceptance"), 2)],
+            ["burn-in, thinning (steps)", f"{fmt(conv.get('burn_in'))}, {fmt(conv.get('thin'))}"],
+            ["posterior draws kept", fmt(conv.get("n_samples"))]]
+    return table(["chain", "value"], rows, number=number, narrow=True,
+                 caption="Convergence of the ensemble sampler.")
+
+
+_TEST_LABELS = {"ks": "Kolmogorov–Smirnov", "anderson_darling": "Anderson–Darling",
+                "epps_singleton": "Epps–Singleton"}
+
+
+def _crosscheck_rows(compared, tests):
+    rows = []
+    if isinstance(tests, list):
+        tests = {dig(row, "name", default=str(i)): row for i, row in enumerate(tests)}
+    if not isinstance(tests, dict):
+        return rows
+    for name, row in tests.items():
+        skipped = dig(row, "skipped")
+        rng = dig(row, "range")
+        rows.append([compared, _TEST_LABELS.get(name, name), fmt(dig(row, "best_k"), 2),
+                     fmt_interval(rng, 2) if rng else ("skipped" if skipped else "none"),
+                     fmt_p(dig(row, "p_best")), Cell(skipped or "", "text")])
+    return rows
+
+
+def crosscheck_table(summary, number):
+    """The distribution-matching cross-check (best k and range with p ≥ 0.05 per two-sample test)."""
+    check = dig(summary, "crosscheck")
+    if not isinstance(check, dict):
+        return Markup("")
+    if dig(check, "skipped"):
+        return tag("p", Markup("<strong>Distribution-matching cross-check skipped:</strong> ")
+                   + esc(dig(check, "skipped")), cls="note")
+    rows = _crosscheck_rows("high-z samples pooled", dig(check, "tests"))
+    per_sample = dig(check, "per_sample")
+    if isinstance(per_sample, dict) and len(per_sample) > 1:
+        for sample, tests in per_sample.items():
+            rows += _crosscheck_rows(f"{sample} alone", tests)
+    if not rows:
+        return Markup("")
+    reference = dig(check, "reference")
+    statistic = dig(check, "statistic")
+    return table(["compared with the reference", "two-sample test", "best k", "k range with p ≥ 0.05",
+                  "p at best k", "note"], rows, number=number, numeric=[2, 3, 4],
+                 caption=f"Assumption-light cross-check: the high-z statistic "
+                         f"({statistic or 'log M_BH/M_*'}) shifted by +k log₁₀(1+z) and compared with "
+                         f"the reference sample{f' {reference!s}' if reference else ''} by two-sample "
+                         f"tests (no Gaussian scatter assumed; selection and method offsets not modelled).")
+
+
+def sensitivity_table(summary, number):
+    rows = dig(summary, "degeneracy", "offset_prior_sensitivity")
+    if not isinstance(rows, list) or not rows:
+        return Markup("")
+    body = [[fmt(dig(r, "offset_prior_width"), 2), fmt(dig(r, "k_std"))] for r in rows]
+    return table(["offset prior width (dex)", "σ(k) (Laplace)"], body, number=number, numeric=[1], narrow=True,
+                 caption="How the width of k follows the prior width of the mass-method offsets: a "
+                         "width that grows with the prior means the data cannot separate k from the offsets.")
+
+
+def fit_body(summary, numbering):
+    """All tables of one fit's section, in reading order."""
+    parts = [data_table(summary, numbering.table), parameter_table(summary, numbering.table),
+             tests_table(summary, numbering.table), convergence_table(summary, numbering.table),
+             crosscheck_table(summary, numbering.table), sensitivity_table(summary, numbering.table)]
+    return join(parts)

@@ -1,0 +1,30 @@
+"""Random streams: one helper turns any seed into a Generator; campaigns spawn per-job streams."""
+
+import numpy as np
+
+
+def make_rng(seed=None):
+    """Return a numpy Generator from an int, a SeedSequence, a Generator or None."""
+    if isinstance(seed, np.random.Generator):
+        return seed
+    if isinstance(seed, np.random.SeedSequence):
+        return np.random.default_rng(seed)
+    return np.random.default_rng(seed)
+
+
+def spawn_seeds(seed, n):
+    """Spawn `n` independent SeedSequences from `seed` (int or SeedSequence).
+
+    The i-th child depends only on (seed, i), so results do not depend on worker count or order.
+    """
+    parent = seed if isinstance(seed, np.random.SeedSequence) else np.random.SeedSequence(seed)
+    return parent.spawn(n)
+
+
+def child_seed(seed, *indices):
+    """SeedSequence for job `indices` (e.g. grid point, realisation) of a campaign seeded by `seed`.
+
+    Uses `spawn_key`, so child (i, j) is the same whether or not the others are ever created.
+    """
+    entropy = seed.entropy if isinstance(seed, np.random.SeedSequence) else seed
+    return np.random.SeedSequence(entropy, spawn_key=tuple(int(i) for i in indices))
