@@ -14,6 +14,7 @@ A run configuration looks like::
     method_offset_width = 0.3      # dex, Gaussian prior sd of mass-method offsets (or a table per method)
     host_growth = 0.0              # gamma, fixed
     outliers = false
+    host_errors = "calibrated"     # or "first_order" (see model.calibrated_hosts)
     [priors]                       # uniform ranges; see model.DEFAULT_PRIORS
     k = [-10.0, 10.0]
     [sampler]
@@ -36,9 +37,10 @@ from .errors import ConfigError
 
 FORMS = ("ratio", "relation")
 SCATTER_MODES = ("shared", "per_sample")
+HOST_ERROR_MODES = ("calibrated", "first_order")
 _TOP_KEYS = {"seed", "cosmology", "model", "priors", "sampler", "sample", "crosscheck", "out"}
 _MODEL_KEYS = {"form", "z_ref", "log_mstar_pivot", "scatter", "zero_point_method",
-               "method_offset_width", "host_growth", "outliers"}
+               "method_offset_width", "host_growth", "outliers", "host_errors"}
 _SAMPLER_KEYS = {"walkers", "max_steps", "autocorr_factor", "check_every", "progress"}
 _SAMPLE_KEYS = {"name", "path", "columns", "method", "selection", "drop_invalid"}
 
@@ -67,6 +69,7 @@ class ModelOptions:
     method_offset_width: object = 0.3
     host_growth: float = 0.0
     outliers: bool = False
+    host_errors: str = "calibrated"
 
 
 @dataclass(frozen=True)
@@ -161,6 +164,7 @@ def _parse_model(table, source):
     options = ModelOptions(**table)
     _check_choice("model.form", options.form, FORMS, source)
     _check_choice("model.scatter", options.scatter, SCATTER_MODES, source)
+    _check_choice("model.host_errors", options.host_errors, HOST_ERROR_MODES, source)
     for key in ("z_ref", "log_mstar_pivot", "host_growth"):
         _check_number(f"model.{key}", getattr(options, key), source)
     if options.z_ref < 0:

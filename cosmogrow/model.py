@@ -54,6 +54,38 @@ def choose_zero_point(catalog):
     return str(methods[np.argmax(counts)])
 
 
+def calibrated_hosts(catalog, mode="calibrated"):
+    """Host masses and their errors as the likelihood uses them.
+
+    "first_order": the observed log M* with its error (DESIGN.md §3, first-order errors in
+    variables). "calibrated" (default): regression calibration (Carroll et al. 2006, Measurement
+    Error in Nonlinear Models, ch. 4): within each sample the true hosts are taken as Gaussian with
+    the sample's observed mean and deconvolved variance tau^2 = var(s_obs) - mean(e_s^2), so
+    s_true | s_obs ~ N((tau^2 s_obs + e_s^2 mean) / (tau^2 + e_s^2), tau^2 e_s^2 / (tau^2 + e_s^2)).
+    Without it, host errors scattering objects across a steep mass function bias each sample's
+    relation differently, and the difference leaks into k. The exact treatment is Kelly (2007).
+
+    Returns
+    -------
+    log_mstar : ndarray, log10 Msun;  log_mstar_err : ndarray, dex
+    """
+    s_obs = np.asarray(catalog.log_mstar, dtype=float)
+    err2 = np.asarray(catalog.log_mstar_err, dtype=float) ** 2
+    if mode == "first_order":
+        return s_obs, np.sqrt(err2)
+    host, host_var = s_obs.copy(), err2.copy()
+    for name in catalog.sample_names:
+        rows = catalog.sample == name
+        if rows.sum() < 5:
+            continue  # too few hosts to estimate their spread: keep first order
+        spread = max(np.var(s_obs[rows], ddof=1) - np.mean(err2[rows]),
+                     0.1 * np.var(s_obs[rows], ddof=1), 1e-4)
+        shrink = spread / (spread + err2[rows])
+        host[rows] = shrink * s_obs[rows] + (1 - shrink) * np.mean(s_obs[rows])
+        host_var[rows] = shrink * err2[rows]
+    return host, np.sqrt(host_var)
+
+
 def build_design(catalog, options):
     """Arrays of the likelihood from a Catalog and ModelOptions."""
     zero_point = options.zero_point_method or choose_zero_point(catalog)
@@ -70,10 +102,11 @@ def build_design(catalog, options):
     scatter_lookup = {name: i for i, name in enumerate(scatter_names)}
     scatter_index = (np.array([scatter_lookup[s] for s in catalog.sample], dtype=np.intp)
                      if len(scatter_names) > 1 else np.zeros(len(catalog), dtype=np.intp))
+    host, host_err = calibrated_hosts(catalog, options.host_errors)
     return Design(x=lever_arm(catalog.z, options.z_ref),
-                  s_centred=np.asarray(catalog.log_mstar) - options.log_mstar_pivot,
+                  s_centred=host - options.log_mstar_pivot,
                   m_obs=np.asarray(catalog.log_mbh, dtype=float), m_err=np.asarray(catalog.log_mbh_err),
-                  s_err=np.asarray(catalog.log_mstar_err),
+                  s_err=host_err,
                   method_index=np.array([lookup[m] for m in catalog.method], dtype=np.intp),
                   scatter_index=scatter_index, method_names=method_names, scatter_names=scatter_names)
 

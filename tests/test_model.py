@@ -5,7 +5,7 @@ import pytest
 from scipy import stats
 
 from cosmogrow.config import ModelOptions
-from cosmogrow.model import CoupledGrowthModel, build_design, lever_arm
+from cosmogrow.model import CoupledGrowthModel, build_design, calibrated_hosts, lever_arm
 
 from mocks import mock_catalog
 
@@ -13,7 +13,8 @@ from mocks import mock_catalog
 def make_model(form="ratio", scatter="shared", outliers=False, gamma=0.0, seed=3):
     rng = np.random.default_rng(seed)
     cat = mock_catalog(rng, 2.0, samples=((0.02, 40, "dynamical"), (0.8, 30, "virial"), (1.5, 25, "virial")))
-    opts = ModelOptions(form=form, scatter=scatter, outliers=outliers, host_growth=gamma)
+    opts = ModelOptions(form=form, scatter=scatter, outliers=outliers, host_growth=gamma,
+                        host_errors="first_order")
     return cat, CoupledGrowthModel(build_design(cat, opts), opts)
 
 
@@ -82,3 +83,50 @@ def test_offset_prior_is_gaussian():
     a[i], b[i] = 0.0, 0.3
     # default width 0.3 dex: one standard deviation costs 1/2 in log prior
     assert model.log_prior(a)[0] - model.log_prior(b)[0] == pytest.approx(0.5)
+
+
+def test_calibrated_hosts_shrink_towards_sample_mean():
+    rng = np.random.default_rng(4)
+    cat = mock_catalog(rng, 0.0, samples=((0.02, 400, "dynamical"), (1.0, 400, "dynamical")), s_err=0.2)
+    host, host_err = calibrated_hosts(cat)
+    rows = cat.sample == "S0"
+    s_obs, e2 = cat.log_mstar[rows], cat.log_mstar_err[rows] ** 2
+    tau2 = np.var(s_obs, ddof=1) - np.mean(e2)
+    # Gaussian prior x Gaussian measurement (regression calibration, Carroll et al. 2006 ch. 4)
+    expected = (tau2 * s_obs + e2 * s_obs.mean()) / (tau2 + e2)
+    np.testing.assert_allclose(host[rows], expected)
+    np.testing.assert_allclose(host_err[rows] ** 2, tau2 * e2 / (tau2 + e2))
+    # the mock's true host spread is 0.3 dex: the deconvolved variance recovers it
+    assert np.sqrt(tau2) == pytest.approx(0.3, abs=0.03)
+    first, first_err = calibrated_hosts(cat, "first_order")
+    np.testing.assert_array_equal(first, cat.log_mstar)
+    np.testing.assert_array_equal(first_err, cat.log_mstar_err)
+
+
+def test_calibration_removes_host_error_bias_between_samples():
+    """Samples with different host ranges: first-order host errors bias k, calibration does not.
+
+    The local sample's hosts sit 0.4 dex lower than the distant sample's; with beta = 1 in the
+    ratio form the attenuation of the observed slope differs, which first order cannot absorb.
+    """
+    from cosmogrow.catalog import Catalog
+    from cosmogrow.estimate import laplace
+
+    estimates = {"calibrated": [], "first_order": []}
+    for r in range(60):
+        rng = np.random.default_rng([9, r])
+        parts = []
+        for name, z, centre in (("near", 0.02, 10.7), ("far", 1.0, 11.1)):
+            s = rng.normal(centre, 0.25, 150)
+            m = 8.5 + 0.6 * (s - 11) + rng.normal(0, 0.25, 150)
+            parts.append(Catalog.from_columns(z=np.full(150, z), log_mbh=m + rng.normal(0, 0.1, 150),
+                                              log_mbh_err=np.full(150, 0.1), log_mstar=s + rng.normal(0, 0.2, 150),
+                                              log_mstar_err=np.full(150, 0.2), sample=name))
+        cat = Catalog.concat(parts)
+        for mode in estimates:
+            opts = ModelOptions(form="relation", host_errors=mode)
+            estimates[mode].append(laplace(CoupledGrowthModel(build_design(cat, opts), opts)).theta[0])
+    calibrated, first = np.array(estimates["calibrated"]), np.array(estimates["first_order"])
+    # truth k = 0; tolerance 3 standard errors of the mean over 60 realisations
+    assert abs(calibrated.mean()) < 3 * calibrated.std(ddof=1) / np.sqrt(60)
+    assert abs(first.mean()) > 5 * first.std(ddof=1) / np.sqrt(60)
