@@ -3,6 +3,8 @@
 Targets: selection-aware likelihood <= 2x the plain one; simulating 10^6 hosts with selection <= 2 s.
 The likelihood is the fit's own (cosmogrow.model), evaluated for 32 walkers at once.
 Run: .venv/bin/python analysis/bench_selection.py
+On a busy machine, glibc returning each (walkers, N) temporary to the system makes timings jump by
+up to 4x between runs; MALLOC_MMAP_THRESHOLD_=33554432 in the environment removes that noise.
 """
 
 import time
@@ -21,8 +23,9 @@ SELECTIONS = {
     "flux limit (far)": {"far": {"kind": "flux_limit", "flux_limit": 1e-13}},
     "SOI (near) + flux (far)": {"near": {"kind": "sphere_of_influence"},
                                 "far": {"kind": "flux_limit", "flux_limit": 1e-13}},
-    "flux x observed cut (far), two cuts": {"far": [{"kind": "flux_limit", "flux_limit": 1e-13},
-                                                    {"kind": "mass_cut", "log_mbh_min": 8.0, "width": 0.1}]},
+    "flux x observed cut (far), two cuts": {"far": [
+        {"kind": "flux_limit", "flux_limit": 1e-13},
+        {"kind": "mass_cut", "log_mbh_min": 8.0, "width": 0.1}]},
 }
 
 
@@ -32,53 +35,54 @@ def make_catalog(n, seed=0):
     s = rng.normal(11.0, 0.3, n)
     m_err = rng.uniform(0.05, 0.3, n)
     m = 8.5 + (s - 11.0) + rng.normal(0, 0.3, n) + rng.normal(0, m_err)
-    return Catalog.from_columns(z=z, log_mbh=m, log_mbh_err=m_err, log_mstar=s, log_mstar_err=np.full(n, 0.1),
-                                sample=np.where(z < 0.1, "near", "far"), method="dynamical")
+    return Catalog.from_columns(z=z, log_mbh=m, log_mbh_err=m_err, log_mstar=s,
+                                log_mstar_err=np.full(n, 0.1), sample=np.where(z < 0.1, "near", "far"),
+                                method="dynamical")
 
 
-def best_of(fn, repeat=30):
-    times = []
-    for _ in range(repeat):
-        t0 = time.process_time()
-        fn()
-        times.append(time.process_time() - t0)
-    return min(times)
-
-
-def likelihood_ratios(n=1000, walkers=32):
+def likelihood_ratios(n=1000, walkers=32, repeat=300):
+    """min over `repeat` interleaved calls of the per-object plain likelihood, the selection-aware
+    one and the correction alone (interleaving keeps both under the same machine load)."""
     catalog = make_catalog(n)
     options = ModelOptions(form="ratio")
     design = build_design(catalog, options)
     plain = CoupledGrowthModel(design, options)
     theta = np.tile(plain.initial_guess(), (walkers, 1))
     theta = theta + 1e-3 * np.random.default_rng(1).standard_normal(theta.shape)
-    t_moments = best_of(lambda: plain.log_likelihood(theta))
-    # the same Gaussian likelihood evaluated object by object (the path selection uses)
-    t_plain = best_of(lambda: plain._log_likelihood_chunk(theta))
-    print(f"plain likelihood, N = {n}, {walkers} walkers: {t_plain * 1e3:.3f} ms per object "
-          f"({t_moments * 1e3:.3f} ms through the Gaussian-moments shortcut)")
     mu = np.full((walkers, n), 8.5)
     var = np.full((walkers, n), 0.1)
+    print(f"likelihood, N = {n}, {walkers} walkers (the plain one object by object, i.e. without the "
+          "Gaussian-moments shortcut the fit uses when there is no selection):")
     for name, selections in SELECTIONS.items():
         selection = SelectionSet.compile(selections, catalog, Planck18)
         model = CoupledGrowthModel(design, options, selection=selection)
-        t_sel = best_of(lambda: model.log_likelihood(theta))
-        t_corr = best_of(lambda: selection.log_correction(mu, 0.0, var, catalog.log_mbh, catalog.log_mbh_err))
-        print(f"  {name:38s}: {t_sel * 1e3:.3f} ms = {t_sel / t_plain:.2f}x plain (target <= 2x); "
-              f"log_correction alone {t_corr * 1e3:.3f} ms")
+        times = np.zeros((repeat, 3))
+        for i in range(repeat):
+            t0 = time.perf_counter()
+            plain._log_likelihood_chunk(theta)
+            t1 = time.perf_counter()
+            model._log_likelihood_chunk(theta)
+            t2 = time.perf_counter()
+            selection.log_correction(mu, 0.0, var, catalog.log_mbh, catalog.log_mbh_err)
+            times[i] = t1 - t0, t2 - t1, time.perf_counter() - t2
+        t_plain, t_sel, t_corr = times.min(axis=0) * 1e3
+        print(f"  {name:38s}: plain {t_plain:.3f} ms, selection-aware {t_sel:.3f} ms = "
+              f"{t_sel / t_plain:.2f}x (target <= 2x); log_correction alone {t_corr:.3f} ms")
 
 
 def simulator_speed():
-    selection = [{"kind": "flux_limit", "flux_limit": 1e-13}, {"kind": "host_mass_cut", "log_mstar_min": 10.5}]
+    selection = [{"kind": "flux_limit", "flux_limit": 1e-13},
+                 {"kind": "host_mass_cut", "log_mstar_min": 10.5}]
     base = {"name": "far", "z_range": [0.5, 2.0], "method": "virial", "selection": selection}
     simulate_population({"seed": 1, "sample": [{**base, "n": 1000}]})  # warm up (astropy realisation)
     for n in (420_000, 1_000_000):
-        t0 = time.perf_counter()
+        t0, c0 = time.perf_counter(), time.process_time()
         _, truth = simulate_population({"seed": 1, "sample": [{**base, "n": n}]})
-        seconds = time.perf_counter() - t0
+        seconds, cpu = time.perf_counter() - t0, time.process_time() - c0
         info = truth["samples"][0]
         print(f"simulate: {info['n_candidates']:.3g} hosts drawn, {n} selected "
-              f"(acceptance {info['acceptance']:.3f}): {seconds:.2f} s")
+              f"(acceptance {info['acceptance']:.3f}): {seconds:.2f} s wall, {cpu:.2f} s CPU "
+              "(target <= 2 s for 1e6 hosts)")
 
 
 if __name__ == "__main__":

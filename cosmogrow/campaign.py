@@ -64,6 +64,7 @@ class CampaignContext:
     truth: dict
     sim_config: object
     estimators: tuple
+    notes: tuple = ()
 
 
 @dataclass(frozen=True, eq=False)
@@ -87,10 +88,17 @@ def prepare_campaign(spec):
     truth.pop("k", None)
     selected = any(data.selections.values())
     estimators = ((AWARE, True),) if selected else ((PLAIN, False),)
+    notes = []
     if selected and spec.compare_plain:
         estimators += ((PLAIN, False),)
+    elif spec.compare_plain:
+        notes.append("compare_plain has no effect: the design declares no selection, so the "
+                     "plain likelihood is the only estimator")
+    if run_config.model.form == "ratio" and truth.get("beta", 1.0) != 1.0:
+        notes.append(f"the mocks have beta = {truth['beta']:g} but the fit uses the ratio form "
+                     f"(beta = 1): the estimator is misspecified on purpose or by mistake")
     return CampaignContext(spec=spec, run_config=run_config, data=data, truth=truth,
-                           sim_config=sim_config, estimators=estimators)
+                           sim_config=sim_config, estimators=estimators, notes=tuple(notes))
 
 
 def plan_tasks(spec):
@@ -192,6 +200,7 @@ def run_campaign(context, out_dir, executor, *, on_progress=None):
     out_dir : path; holds campaign.json and journal.jsonl (kept for resuming)
     executor : an executor of `cosmogrow.executors`
     on_progress : callable(done, total, elapsed_s, eta_s), optional; called after every job
+        (eta_s is NaN until the rate is known)
     """
     spec = context.spec
     if spec.seed is None:
@@ -209,6 +218,7 @@ def run_campaign(context, out_dir, executor, *, on_progress=None):
         stamp_path.write_text(json.dumps(stamp, indent=2) + "\n")
     tasks = plan_tasks(spec)
     started = time.monotonic()
+    first = None
     with Journal(out_dir / JOURNAL) as journal:
         done = {tuple(rec["task"]): rec for rec in journal.records}
         todo = [task for task in tasks if task not in done]
@@ -216,9 +226,13 @@ def run_campaign(context, out_dir, executor, *, on_progress=None):
         for count, record in enumerate(executor.map_unordered(run_task, context, todo), start=1):
             journal.append(record)
             done[tuple(record["task"])] = record
+            now = time.monotonic()
+            first = now if first is None else first
             if on_progress is not None:
-                elapsed = time.monotonic() - started
-                on_progress(resumed + count, len(tasks), elapsed, elapsed / count * (len(todo) - count))
+                # the rate since the first finished job: worker start-up does not skew it
+                rate = (count - 1) / (now - first) if count > 1 and now > first else float("nan")
+                on_progress(resumed + count, len(tasks), now - started, (len(todo) - count) / rate
+                            if count < len(todo) else 0.0)
     rows = [row for task in tasks for row in done[task]["rows"]]
     results = results_table(rows, [name for name, _ in context.estimators])
     summary = summarise(context, results)
@@ -261,8 +275,9 @@ def summarise(context, results):
             sbc[name] = calibration.sbc_block(rows["sbc_rank"].to_numpy(), spec.sbc.draws,
                                               spec.sbc.prior)
     return {"campaign": spec.to_dict(), "mode": spec.mode,
-            "estimators": [name for name, _ in context.estimators],
-            "truth": context.truth, "n_mocks": int(len(results)),
+            "estimators": [name for name, _ in context.estimators], "notes": list(context.notes),
+            "truth": context.truth, "n_mocks": int(len(plan_tasks(spec))),
+            "n_rows": int(len(results)),
             "n_errors": int((results["error"] != "").sum()),
             "recovery": recovery, "sbc": sbc or None,
             "design": {"n_objects": int(results["n_objects"].median()) if len(results) else 0,

@@ -21,6 +21,13 @@ A campaign configuration looks like::
     draws = 99                     # posterior draws per mock (ranks 0..draws)
 
 Paths are relative to the campaign file. Every error is a ConfigError naming the key.
+
+Notes: in design mode the mocks' truth is the selection-aware MAP of the design's own data with k
+replaced (then [truth] overrides); in simulation mode it is the simulator's [truth]. MCMC mode
+runs each fit as `cosmogrow fit` does (walkers, autocorrelation rule of the run configuration)
+but stops at `max_steps` (a capped chain is reported with converged = false). SBC mocks are
+fitted with the run's own prior on k (default uniform on [-10, 10]); as long as the likelihood is
+much narrower than both ranges, the ranks of a calibrated estimator are uniform.
 """
 
 from dataclasses import dataclass

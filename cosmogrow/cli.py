@@ -19,13 +19,14 @@ EXIT_NOT_CONVERGED = 3
 COMMANDS = ("fit", "simulate", "inject", "nulltest", "challenge", "budget", "remnants", "report", "demo")
 
 
-def build_parser():
+def build_parser(only=None):
+    """The argument parser; with `only`, just that subcommand is imported (a faster start)."""
     parser = argparse.ArgumentParser(
         prog="cosmogrow",
         description="Measure and calibrate coupled black-hole growth, M_BH ∝ a^k.")
     parser.add_argument("--version", action="version", version=f"cosmogrow {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
-    for name in COMMANDS:
+    for name in COMMANDS if only is None else (only,):
         try:
             module = importlib.import_module(f".commands.{name}", __package__)
         except ModuleNotFoundError as exc:
@@ -36,8 +37,16 @@ def build_parser():
     return parser
 
 
+def _requested_command(argv):
+    for token in argv:
+        if not token.startswith("-"):
+            return token if token in COMMANDS else None
+    return None
+
+
 def main(argv=None):
-    parser = build_parser()
+    argv = sys.argv[1:] if argv is None else list(argv)
+    parser = build_parser(_requested_command(argv))
     args = parser.parse_args(argv)
     if not getattr(args, "run", None):
         parser.print_help()

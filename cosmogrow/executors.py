@@ -7,12 +7,17 @@ configuration) is shipped once per worker, not once per task. Results must depen
 and the number of workers change nothing but the speed.
 """
 
+import multiprocessing
 import os
+import pickle
 from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
 
 from .errors import ConfigError
 
 _WORKER_CONTEXT = {}
+#: Worker processes run one BLAS thread each: the workers already fill the cores, and idle
+#: BLAS threads spinning beside another worker cost more than they give on small matrices.
+SINGLE_THREAD_ENV = {"OPENBLAS_NUM_THREADS": "1", "OMP_NUM_THREADS": "1", "MKL_NUM_THREADS": "1"}
 
 
 def available_cores():
@@ -37,8 +42,12 @@ class SerialExecutor:
         pass
 
 
-def _install_context(context):
-    _WORKER_CONTEXT["context"] = context
+def _install_context(context_bytes):
+    # Runs in a freshly spawned worker before numpy is imported (this module does not import it
+    # and the context arrives pickled), so the thread limits take effect.
+    for name, value in SINGLE_THREAD_ENV.items():
+        os.environ.setdefault(name, value)
+    _WORKER_CONTEXT["context"] = pickle.loads(context_bytes)
 
 
 def _call_with_worker_context(function, task):
@@ -48,6 +57,9 @@ def _call_with_worker_context(function, task):
 class ProcessExecutor:
     """A pool of local worker processes (default: one per available core).
 
+    Workers are spawned (fresh interpreters, one BLAS thread each) and receive the context once.
+    As with any spawned pool, a script that uses it must guard its entry point with
+    ``if __name__ == "__main__":`` (notebooks and the command line need nothing).
     At most ``2 * workers`` tasks are in flight, so an interrupted run has started little it will
     not finish.
     """
@@ -60,8 +72,10 @@ class ProcessExecutor:
         self._pool = None
 
     def map_unordered(self, function, context, tasks):
-        self._pool = ProcessPoolExecutor(max_workers=self.workers, initializer=_install_context,
-                                         initargs=(context,))
+        self._pool = ProcessPoolExecutor(max_workers=self.workers,
+                                         mp_context=multiprocessing.get_context("spawn"),
+                                         initializer=_install_context,
+                                         initargs=(pickle.dumps(context),))
         tasks = iter(tasks)
         pending = set()
         try:
@@ -136,10 +150,13 @@ class DaskExecutor:
 
 
 def make_executor(*, workers=None, scheduler=None, processes=True):
-    """The executor the command line asked for: Dask when `scheduler` is given, else a pool
-    (serial when workers == 1)."""
+    """The executor the command line asked for: Dask when `scheduler` is given, else a pool of
+    `workers` processes (default: all cores).
+
+    One worker is a pool of one spawned process too, not this process: the fits then run with one
+    BLAS thread, which on a busy machine is ten times faster than OpenBLAS's default threading for
+    the optimiser's tiny matrices (measured: L-BFGS-B's setulb 9 us vs 3.3 ms per call at load 6).
+    """
     if scheduler is not None:
         return DaskExecutor(scheduler, workers=workers, processes=processes)
-    if workers == 1:
-        return SerialExecutor()
     return ProcessExecutor(workers)

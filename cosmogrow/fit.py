@@ -12,7 +12,8 @@ from .catalog import Catalog
 from .catalog_io import read_catalog
 from .crosscheck import crosscheck_warnings, run_crosscheck
 from .errors import ConfigError, InputError
-from .estimate import laplace, start_walkers
+from .estimate import find_map, laplace, start_walkers
+from .hostprior import parent_host_priors
 from .model import CoupledGrowthModel, build_design
 from .outputs import package_versions, sha256_file
 from .sampler import default_walkers, run_ensemble
@@ -70,14 +71,31 @@ def load_data(config):
                    cosmology=cosmology)
 
 
-def build_model(config, data, *, selection_aware=True, catalog=None):
-    """The posterior of a run; `catalog` replaces the data's rows (mocks of the same design)."""
+def build_model(config, data, *, selection_aware=True, catalog=None, host_rounds=2):
+    """The posterior of a run; `catalog` replaces the data's rows (mocks of the same design).
+
+    With selection and calibrated host errors, the parent host distribution of every selected
+    sample is estimated in `host_rounds` alternations with the MAP (hostprior module); the
+    resulting priors are kept on the model as `host_priors`.
+    """
     catalog = data.catalog if catalog is None else catalog
-    design = build_design(catalog, config.model)
     selection = None
     if selection_aware and any(data.selections.values()):
         selection = SelectionSet.compile(data.selections, catalog, data.cosmology)
-    return CoupledGrowthModel(design, config.model, config.priors, selection)
+    model = CoupledGrowthModel(build_design(catalog, config.model), config.model, config.priors, selection)
+    model.host_priors = {}
+    if model.selection is None or config.model.host_errors != "calibrated":
+        return model
+    selected = [name for name, models in data.selections.items()
+                if any(m.on != "host" for m in models) and name in catalog.sample_names]
+    theta = None
+    for _ in range(host_rounds):
+        theta, _, _ = find_map(model, theta)
+        priors = parent_host_priors(model, catalog, theta, selected, config.model.log_mstar_pivot)
+        model = CoupledGrowthModel(build_design(catalog, config.model, priors), config.model,
+                                   config.priors, selection)
+        model.host_priors = priors
+    return model
 
 
 def run_fit(config, data, *, chain_path=None, on_check=None, selection_aware=True):
@@ -110,6 +128,11 @@ def summarise(config, data, model, approx, chain):
                            f"{config.sampler.autocorr_factor:g} required")
     if not model.selection and any(data.selections.values()):
         warnings.append("selection is declared but not modelled in this fit (plain likelihood)")
+    failing = getattr(model.selection, "rows_failing_hard_cuts", ())
+    if len(failing):
+        ids = ", ".join(str(i) for i in data.catalog.ids[failing[:5]])
+        warnings.append(f"{len(failing)} object(s) lie below a declared hard cut on the observed mass "
+                        f"(e.g. {ids}): the declared selection does not describe these data")
     if not any(data.selections.values()):
         warnings.append("no selection is declared for any sample: k is only as good as the "
                         "assumption that the samples were not selected on black-hole mass")
@@ -126,7 +149,10 @@ def summarise(config, data, model, approx, chain):
         "degeneracy": {"offset_prior_sensitivity": offset_sensitivity(model, approx)},
         "selection": {"corrected": model.selection is not None,
                       "samples": {name: [m.to_dict() for m in models]
-                                  for name, models in data.selections.items()}},
+                                  for name, models in data.selections.items()},
+                      "parent_host_priors": {name: {"mean": mean, "std": float(np.sqrt(var))}
+                                             for name, (mean, var) in
+                                             getattr(model, "host_priors", {}).items()}},
         "crosscheck": crosscheck,
         "warnings": warnings,
         "data": data_overview(data.catalog),

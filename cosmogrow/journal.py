@@ -10,6 +10,13 @@ import json
 import os
 from pathlib import Path
 
+from .errors import ConfigError
+
+try:
+    import fcntl
+except ImportError:  # pragma: no cover - not POSIX
+    fcntl = None
+
 
 def read_records(path):
     """Records of a journal and the byte length of its intact part.
@@ -39,12 +46,23 @@ def read_records(path):
 
 
 class Journal:
-    """Appends records to `path` durably; opening it drops a torn tail left by a killed run."""
+    """Appends records to `path` durably; opening it drops a torn tail left by a killed run.
+
+    The file is locked (POSIX advisory lock) while open: a second campaign writing to the same
+    folder is refused with a ConfigError instead of interleaving lines.
+    """
 
     def __init__(self, path):
         self.path = Path(path)
-        self.records, valid = read_records(self.path)
         self._handle = open(self.path, "ab")
+        if fcntl is not None:
+            try:
+                fcntl.flock(self._handle.fileno(), fcntl.LOCK_EX | fcntl.LOCK_NB)
+            except OSError:
+                self._handle.close()
+                raise ConfigError(f"{self.path}: another campaign is writing to this journal; "
+                                  "wait for it or choose another --out") from None
+        self.records, valid = read_records(self.path)
         if self._handle.tell() != valid:
             self._handle.truncate(valid)
             self._handle.seek(valid)

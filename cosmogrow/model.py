@@ -54,7 +54,7 @@ def choose_zero_point(catalog):
     return str(methods[np.argmax(counts)])
 
 
-def calibrated_hosts(catalog, mode="calibrated"):
+def calibrated_hosts(catalog, mode="calibrated", host_priors=None):
     """Host masses and their errors as the likelihood uses them.
 
     "first_order": the observed log M* with its error (DESIGN.md §3, first-order errors in
@@ -64,6 +64,8 @@ def calibrated_hosts(catalog, mode="calibrated"):
     s_true | s_obs ~ N((tau^2 s_obs + e_s^2 mean) / (tau^2 + e_s^2), tau^2 e_s^2 / (tau^2 + e_s^2)).
     Without it, host errors scattering objects across a steep mass function bias each sample's
     relation differently, and the difference leaks into k. The exact treatment is Kelly (2007).
+    `host_priors` ({sample: (mean, variance)} of the true hosts) replaces a sample's observed
+    moments, e.g. by the parent (pre-selection) distribution from `hostprior.parent_host_priors`.
 
     Returns
     -------
@@ -74,20 +76,29 @@ def calibrated_hosts(catalog, mode="calibrated"):
     if mode == "first_order":
         return s_obs, np.sqrt(err2)
     host, host_var = s_obs.copy(), err2.copy()
+    host_priors = host_priors or {}
     for name in catalog.sample_names:
         rows = catalog.sample == name
-        if rows.sum() < 5:
+        if name in host_priors:
+            centre, spread = host_priors[name]
+        elif rows.sum() < 5:
             continue  # too few hosts to estimate their spread: keep first order
-        spread = max(np.var(s_obs[rows], ddof=1) - np.mean(err2[rows]),
-                     0.1 * np.var(s_obs[rows], ddof=1), 1e-4)
+        else:
+            centre, spread = observed_host_moments(s_obs[rows], err2[rows])
         shrink = spread / (spread + err2[rows])
-        host[rows] = shrink * s_obs[rows] + (1 - shrink) * np.mean(s_obs[rows])
+        host[rows] = shrink * s_obs[rows] + (1 - shrink) * centre
         host_var[rows] = shrink * err2[rows]
     return host, np.sqrt(host_var)
 
 
-def build_design(catalog, options):
-    """Arrays of the likelihood from a Catalog and ModelOptions."""
+def observed_host_moments(s_obs, err2):
+    """Mean and deconvolved variance of a sample's true hosts (floored at 10 % of the observed)."""
+    variance = np.var(s_obs, ddof=1)
+    return float(np.mean(s_obs)), float(max(variance - np.mean(err2), 0.1 * variance, 1e-4))
+
+
+def build_design(catalog, options, host_priors=None):
+    """Arrays of the likelihood from a Catalog and ModelOptions (host_priors: see calibrated_hosts)."""
     zero_point = options.zero_point_method or choose_zero_point(catalog)
     methods = list(catalog.method_names)
     if zero_point not in methods:
@@ -102,7 +113,7 @@ def build_design(catalog, options):
     scatter_lookup = {name: i for i, name in enumerate(scatter_names)}
     scatter_index = (np.array([scatter_lookup[s] for s in catalog.sample], dtype=np.intp)
                      if len(scatter_names) > 1 else np.zeros(len(catalog), dtype=np.intp))
-    host, host_err = calibrated_hosts(catalog, options.host_errors)
+    host, host_err = calibrated_hosts(catalog, options.host_errors, host_priors)
     return Design(x=lever_arm(catalog.z, options.z_ref),
                   s_centred=host - options.log_mstar_pivot,
                   m_obs=np.asarray(catalog.log_mbh, dtype=float), m_err=np.asarray(catalog.log_mbh_err),
@@ -208,6 +219,18 @@ class CoupledGrowthModel:
             out[ok] = out[ok] + self.log_likelihood(theta[ok])
         out[~np.isfinite(out)] = -np.inf
         return out
+
+    def components(self, theta):
+        """Per-object pieces of the mean at one parameter vector: a dict with alpha, beta,
+        k_eff (k - beta gamma), sigma2 (intrinsic variance per object) and delta (offset per object)."""
+        theta = np.asarray(theta, dtype=float)
+        d = self.design
+        sig2 = theta[self._i_scatter] ** 2
+        delta_all = np.concatenate([[0.0], theta[self._i_delta]])
+        beta = theta[2] if self.relation else 1.0
+        return {"alpha": theta[1], "beta": beta, "k_eff": theta[0] - beta * self.gamma,
+                "sigma2": sig2[d.scatter_index] if sig2.size > 1 else np.full(len(d.x), sig2[0]),
+                "delta": delta_all[d.method_index]}
 
     def per_object_log_likelihood(self, theta):
         """Log likelihood of every object at one parameter vector, shape (N,)."""

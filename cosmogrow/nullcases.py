@@ -12,7 +12,7 @@ from scipy import stats
 
 from .crosscheck import choose_reference
 from .nulltests import (INTERVAL_LEVEL, binomial_excess_p, bonferroni, make_result, monte_carlo_p,
-                        nested_pull, skipped_result, two_sided_p)
+                        nested_pull, predictive_p, skipped_result, two_sided_p)
 from .replicas import draw_replica
 from .seeding import child_seed, make_rng
 
@@ -35,6 +35,13 @@ def _pass_words(passed):
     return "passes" if passed else "FAILS"
 
 
+def _convergence_words(unsound, total):
+    if not unsound:
+        return ""
+    return (f" {unsound} of {total} fits did not converge (an unsound Laplace approximation or a "
+            "capped chain); they are included.")
+
+
 # ----- 1. redshift permutation -------------------------------------------------------------------
 def redshift_permutation(ctx):
     """Shuffle (z, sample label) pairs among objects; the observed |k| against the permuted ones."""
@@ -42,22 +49,28 @@ def redshift_permutation(ctx):
     null = ("Redshifts and sample labels carry no information about the black-hole masses (given "
             "host mass and method): the observed k is a typical draw from its permutation "
             "distribution.")
-    statistic = "|k| of the data among |k| of fits with (z, sample) shuffled among objects"
+    statistic = ("k of the data against the k of fits with (z, sample) shuffled among objects: "
+                 "two-sided Student-t predictive p-value of the permutation distribution")
     cat = ctx.data.catalog
-    draws, stds = [], []
+    draws, stds, unsound = [], [], 0
     for r in range(ctx.repeats):
         order = make_rng(child_seed(ctx.seed, PERMUTATION, r)).permutation(len(cat))
         shuffled = cat.replace(z=cat.z[order], sample=cat.sample[order])
-        fit = ctx.fitter(shuffled, seed=child_seed(ctx.seed, PERMUTATION, r, 1))
+        # each object keeps the selection it was observed under (thresholds at its own z, sample)
+        fit = ctx.fitter(shuffled, seed=child_seed(ctx.seed, PERMUTATION, r, 1), selection_catalog=cat)
         draws.append(fit["k"])
         stds.append(fit["k_std"])
+        unsound += not fit["converged"]
     draws, stds = np.array(draws), np.array(stds)
     k_obs = ctx.observed["k"]
-    p = monte_carlo_p(abs(k_obs), np.abs(draws))
+    p_empirical = monte_carlo_p(abs(k_obs), np.abs(draws))
+    p = predictive_p(k_obs, draws)
+    p = p_empirical if not np.isfinite(p) else p
     passed = p >= ctx.alpha
     false_positive = float(np.mean(np.abs(draws / stds) > _Z_INTERVAL))
-    note = (f"{_pass_words(passed)}: the data's k = {k_obs:.2f} is exceeded in |k| by "
-            f"{np.sum(np.abs(draws) >= abs(k_obs))} of {len(draws)} permutations (p = {p:.3g}). ")
+    note = (f"{_pass_words(passed)}: the data's k = {k_obs:.2f} against {len(draws)} permutations "
+            f"(k = {np.mean(draws):.2f} ± {np.std(draws, ddof=1) if len(draws) > 1 else 0:.2f}; "
+            f"p = {p:.3g}; {np.sum(np.abs(draws) >= abs(k_obs))} reach |k| as large). ")
     if passed:
         note += "The redshift trend is not distinguishable from chance assignments of redshift."
     else:
@@ -67,17 +80,17 @@ def redshift_permutation(ctx):
     note += (f" Permuted fits scatter by {np.std(draws, ddof=1):.2f} in k against a typical fit "
              f"uncertainty of {np.median(stds):.2f}; {100 * false_positive:.0f} % of them exclude "
              f"k = 0 at {100 * INTERVAL_LEVEL:g} %.") if len(draws) > 1 else ""
-    if 1.0 / (len(draws) + 1) > ctx.alpha:
-        note += f" With {len(draws)} permutations p cannot fall below {1 / (len(draws) + 1):.3g}."
+    note += _convergence_words(unsound, len(draws))
     if any(ctx.data.selections.values()):
-        note += (" Selection is declared: labels are exchangeable only approximately, since each "
-                 "object is selected as its new sample would be.")
+        note += (" Each shuffled object keeps the selection it was observed under, so the "
+                 "selection-aware fit of a permutation has k = 0 as its truth.")
     return make_result("redshift_permutation", title, null_hypothesis=null, statistic=statistic,
-                       value=abs(k_obs), p_value=p, threshold=_threshold(ctx.alpha), passed=passed,
+                       value=k_obs, p_value=p, threshold=_threshold(ctx.alpha), passed=passed,
                        note=note, interval=[float(np.percentile(draws, 2.5)),
                                             float(np.percentile(draws, 97.5))],
                        details={"k_observed": k_obs, "k_permuted": draws, "k_std_permuted": stds,
-                                "fraction_excluding_0": false_positive})
+                                "p_empirical": p_empirical, "fraction_excluding_0": false_positive,
+                                "not_converged": unsound})
 
 
 # ----- 2. reference split ------------------------------------------------------------------------
@@ -86,8 +99,9 @@ def reference_split(ctx):
     title = "Reference split"
     null = ("Half of the lowest-redshift sample, given redshifts drawn from the other samples, is "
             "the same population as the other half: k = 0.")
-    statistic = ("split-averaged k over its null standard deviation, z = mean(k_j) / sqrt(mean(σ_j²) "
-                 "- s²(1 - 1/S)) (law of total variance; s² = variance of k_j across the S splits)")
+    statistic = ("split-averaged k over its null standard deviation, z = mean(k_j) / sqrt(max(mean(σ_j²) "
+                 "- s²(1 - 1/S), s²/S)) (law of total variance; s² = variance of k_j across the S "
+                 "splits)")
     cat = ctx.data.catalog
     ref = choose_reference(cat)
     others = cat.z[cat.sample != ref]
@@ -101,7 +115,7 @@ def reference_split(ctx):
                               f"{2 * MIN_OBJECTS} are needed")
     original = cat.subset(rows)
     moved_label = f"{ref}:moved"
-    ks, stds = [], []
+    ks, stds, unsound = [], [], 0
     for j in range(ctx.repeats):
         rng = make_rng(child_seed(ctx.seed, SPLIT, j))
         moved = rng.permutation(rows.size)[: rows.size // 2]
@@ -113,11 +127,14 @@ def reference_split(ctx):
         fit = ctx.fitter(split, seed=child_seed(ctx.seed, SPLIT, j, 1), selection_catalog=original)
         ks.append(fit["k"])
         stds.append(fit["k_std"])
+        unsound += not fit["converged"]
     ks, stds = np.array(ks), np.array(stds)
     n = len(ks)
     spread = float(np.var(ks, ddof=1)) if n > 1 else 0.0
     mean_var = float(np.mean(stds**2))
-    var = max(mean_var - spread * (1 - 1 / n), mean_var / n)
+    # Var(mean k_j) = Var_data(E[k | data]) + E[split variance] / S, with σ_j² estimating the total
+    # variance of one split's k; floored at the split part alone, s²/S.
+    var = max(mean_var - spread * (1 - 1 / n), spread / n) if n > 1 else mean_var
     z_stat = float(np.mean(ks) / np.sqrt(var))
     p = two_sided_p(z_stat)
     passed = p >= ctx.alpha
@@ -127,12 +144,14 @@ def reference_split(ctx):
              "The fit finds a coupling in a sample that cannot have one: something other than "
              "redshift drives k (the selection model's redshift dependence, priors, or host-mass "
              "structure). Do not trust k until this is understood.")
+    note += _convergence_words(unsound, n)
     return make_result("reference_split", title, null_hypothesis=null, statistic=statistic,
                        value=z_stat, p_value=p, threshold=_threshold(ctx.alpha), passed=passed,
                        note=note, interval=[float(np.mean(ks) - 1.96 * np.sqrt(var)),
                                             float(np.mean(ks) + 1.96 * np.sqrt(var))],
                        details={"reference": ref, "k_splits": ks, "k_std_splits": stds,
-                                "mean_k": float(np.mean(ks)), "null_std": float(np.sqrt(var))})
+                                "mean_k": float(np.mean(ks)), "null_std": float(np.sqrt(var)),
+                                "not_converged": unsound})
 
 
 # ----- 3. leave samples out ----------------------------------------------------------------------
@@ -302,41 +321,51 @@ def k0_with_selection(ctx):
                  f"reported significance); also the mocks' rate of excluding k = 0 at "
                  f"{100 * INTERVAL_LEVEL:g} % against binomial({100 * (1 - INTERVAL_LEVEL):g} %)")
     truth = ctx.null_truth(0.0)
-    ks, stds = [], []
+    ks, stds, unsound = [], [], 0
     for r in range(ctx.repeats):
         mock = draw_replica(ctx.config, ctx.data, truth, child_seed(ctx.seed, K0, r))
         fit = ctx.fitter(mock, seed=child_seed(ctx.seed, K0, r, 1))
         ks.append(fit["k"])
         stds.append(fit["k_std"])
+        unsound += not fit["converged"]
     ks, stds = np.array(ks), np.array(stds)
     pulls = ks / stds
     t_obs = ctx.observed["k"] / ctx.observed["k_std"]
-    p_obs = monte_carlo_p(abs(t_obs), np.abs(pulls))
+    p_empirical = monte_carlo_p(abs(t_obs), np.abs(pulls))
+    p_obs = predictive_p(t_obs, pulls)
+    p_obs = p_empirical if not np.isfinite(p_obs) else p_obs
     n_fp = int(np.sum(np.abs(pulls) > _Z_INTERVAL))
     p_fp = binomial_excess_p(n_fp, len(pulls), 1 - INTERVAL_LEVEL)
-    passed = p_obs >= ctx.alpha and p_fp >= ctx.alpha
+    p = min(1.0, 2.0 * min(p_obs, p_fp))  # Bonferroni over the two parts
+    passed = p >= ctx.alpha
     percentile = float(100 * np.mean(ks <= ctx.observed["k"]))
     note = (f"{_pass_words(passed)}: {np.sum(np.abs(pulls) >= abs(t_obs))} of {len(pulls)} k = 0 mocks "
-            f"reach the data's |k/σ| = {abs(t_obs):.2f} (p = {p_obs:.3g}); the data's k = "
+            f"reach the data's |k/σ| = {abs(t_obs):.2f} (predictive p = {p_obs:.3g}); the data's k = "
             f"{ctx.observed['k']:.2f} lies at the {percentile:.1f} percentile of the mocks' k. "
-            f"{n_fp} mocks ({100 * n_fp / len(pulls):.1f} %) exclude k = 0 at {100 * INTERVAL_LEVEL:g} % "
+            f"{n_fp} mock{'' if n_fp == 1 else 's'} ({100 * n_fp / len(pulls):.1f} %) exclude k = 0 "
+            f"at {100 * INTERVAL_LEVEL:g} % "
             f"(binomial p = {p_fp:.3g}). ")
-    if p_obs < ctx.alpha:
+    if p_obs < ctx.alpha / 2:
         note += ("The declared selection alone, with k = 0, does not produce an estimate this far "
                  "from 0: either k ≠ 0, or the selection is not fully declared (an undeclared cut "
                  "acts like a coupling). Check with `cosmogrow challenge` and the selection you "
                  "believe in. ")
-    if p_fp < ctx.alpha:
-        note += "The estimator excludes k = 0 too often in k = 0 mocks: its intervals are too narrow for this design."
+    if p_fp < ctx.alpha / 2:
+        note += ("The estimator excludes k = 0 too often in k = 0 mocks: its intervals are too "
+                 "narrow for this design.")
+    note += _convergence_words(unsound, len(ks))
     if not any(ctx.data.selections.values()):
         note += " No selection is declared: the mocks have none."
     return make_result("k0_with_selection", title, null_hypothesis=null, statistic=statistic,
-                       value=float(abs(t_obs)), p_value=p_obs, threshold=_threshold(ctx.alpha),
+                       value=float(abs(t_obs)), p_value=p, threshold=_threshold(ctx.alpha),
                        passed=passed, note=note.strip(),
                        interval=[float(np.percentile(ks, 2.5)), float(np.percentile(ks, 97.5))],
                        details={"k_mocks": ks, "k_std_mocks": stds, "k_observed": ctx.observed["k"],
-                                "observed_pull": float(t_obs), "false_positives": n_fp,
+                                "observed_pull": float(t_obs), "observed_p": p_obs,
+                                "observed_p_empirical": p_empirical,
+                                "false_positives": n_fp,
                                 "false_positive_p": p_fp, "observed_percentile": percentile,
+                                "not_converged": unsound,
                                 "truth": truth})
 
 

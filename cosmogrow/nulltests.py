@@ -20,9 +20,10 @@ from scipy import stats
 
 from .errors import ConfigError
 from .estimate import find_map, laplace, start_walkers
-from .fit import FitData
+from .fit import FitData, build_model
+from .hostprior import parent_host_priors
 from .model import CoupledGrowthModel, build_design
-from .replicas import CAMPAIGN_MAX_STEPS, MODES, design_truth, fit_replica
+from .replicas import CAMPAIGN_MAX_STEPS, MODES, design_truth, fit_replica, laplace_is_sound
 from .sampler import default_walkers, run_ensemble
 from .seeding import child_seed, make_rng
 from .selection import SelectionSet
@@ -75,15 +76,15 @@ class Fitter:
         return {name: spec for name, spec in self.data.selections.items() if spec and name in present}
 
     def model(self, catalog, selection_catalog=None):
-        """The run's posterior for `catalog` (selection thresholds from `selection_catalog`)."""
+        """The run's posterior for `catalog` (`fit.build_model`); with `selection_catalog` (the same
+        rows with their original redshifts and labels) the selection thresholds come from it."""
         config = self._config_for(catalog)
         source = catalog if selection_catalog is None else selection_catalog
-        selections = self._selections_for(source)
-        selection = None
-        if self.selection_aware and selections:
-            selection = SelectionSet.compile(selections, source, self.data.cosmology)
-        return CoupledGrowthModel(build_design(catalog, config.model), config.model, config.priors,
-                                  selection)
+        data = FitData(catalog=catalog, files=[], selections=self._selections_for(source),
+                       cosmology=self.data.cosmology)
+        if selection_catalog is None:
+            return build_model(config, data, selection_aware=self.selection_aware, catalog=catalog)
+        return _model_with_selection_of(config, data, catalog, source, self.selection_aware)
 
     def __call__(self, catalog, *, seed=None, selection_catalog=None):
         if selection_catalog is None:
@@ -96,14 +97,40 @@ class Fitter:
         return {"k": float(out["k"]), "k_std": float(out["k_std"]), "converged": bool(out["converged"])}
 
 
+def _model_with_selection_of(config, data, catalog, source, selection_aware, host_rounds=2):
+    """`fit.build_model` for `catalog` with the selection compiled on `source` (same rows).
+
+    Mirrors build_model step by step (selection, model, and with calibrated host errors the
+    alternation of the MAP with the parent host priors of the selected samples); a sample of
+    `catalog` counts as selected when any of its rows comes from a sample with a black-hole-mass cut.
+    """
+    selection = None
+    if selection_aware and data.selections:
+        selection = SelectionSet.compile(data.selections, source, data.cosmology)
+    model = CoupledGrowthModel(build_design(catalog, config.model), config.model, config.priors,
+                               selection)
+    model.host_priors = {}
+    if model.selection is None or config.model.host_errors != "calibrated":
+        return model
+    cut = {name for name, models in data.selections.items() if any(m.on != "host" for m in models)}
+    selected = list(dict.fromkeys(catalog.sample[np.isin(source.sample, list(cut))].tolist()))
+    theta = None
+    for _ in range(host_rounds):
+        theta, _, _ = find_map(model, theta)
+        priors = parent_host_priors(model, catalog, theta, selected, config.model.log_mstar_pivot)
+        model = CoupledGrowthModel(build_design(catalog, config.model, priors), config.model,
+                                   config.priors, selection)
+        model.host_priors = priors
+    return model
+
+
 def fit_model(config, model, mode="fast", seed=None):
     """k of a prebuilt model, reduced like `replicas.fit_replica` (MAP/Laplace or MCMC median/std)."""
     approx = laplace(model)
     i = model.index_k
     if mode == "fast":
         std = float(approx.std[i])
-        return {"k": float(approx.theta[i]), "k_std": std,
-                "converged": bool(approx.success and np.isfinite(std) and std > 0)}
+        return {"k": float(approx.theta[i]), "k_std": std, "converged": laplace_is_sound(model, approx)}
     parent = seed if isinstance(seed, np.random.SeedSequence) else np.random.SeedSequence(seed)
     walker_seed, sampler_seed = (np.random.SeedSequence(parent.entropy, spawn_key=parent.spawn_key + (j,))
                                  for j in range(2))
@@ -139,15 +166,23 @@ class NullContext:
     alpha: float = ALPHA
 
     def null_truth(self, k=0.0):
-        """Truth table of the data's design at coupling `k`: the nuisances maximise the posterior
-        of the run's (selection-aware when declared) model with k held fixed."""
-        model = Fitter(self.config, self.data).model(self.data.catalog)
-        start = laplace(model).theta
-        low, high = model.lower[model.index_k], model.upper[model.index_k]
-        if not low < k < high:
-            raise ConfigError(f"k = {k:g} is outside the prior range of k [{low:g}, {high:g}]")
-        theta, _, _ = find_map(model, start, fixed={model.index_k: float(k)})
-        return design_truth(model, theta, k)
+        """Truth table of the data's design at coupling `k` (see `truth_at`)."""
+        return truth_at(self.config, self.data, k)
+
+
+def truth_at(config, data, k):
+    """Truth table of the data's design at coupling `k`: the nuisance parameters maximise the
+    posterior of the run's model (selection-aware when a selection is declared) with k held fixed.
+
+    Raises ConfigError when k lies outside the prior range of k.
+    """
+    model = Fitter(config, data).model(data.catalog)
+    low, high = model.lower[model.index_k], model.upper[model.index_k]
+    if not low < k < high:
+        raise ConfigError(f"k = {k:g} is outside the prior range of k [{low:g}, {high:g}]")
+    start = laplace(model).theta
+    theta, _, _ = find_map(model, start, fixed={model.index_k: float(k)})
+    return design_truth(model, theta, k)
 
 
 def make_context(config, data, *, mode="fast", seed=0, repeats=DEFAULT_REPEATS, alpha=ALPHA,
@@ -203,6 +238,24 @@ def two_sided_mc_p(observed, draws):
     return float(min(1.0, 2.0 * tail / (n + 1)))
 
 
+def predictive_p(observed, draws):
+    """Two-sided p-value of `observed` as one more draw from the Gaussian the draws come from.
+
+    (x - mean) / (s sqrt(1 + 1/n)) follows Student's t with n - 1 degrees of freedom when the n
+    draws and x are independent Gaussian draws (the prediction interval of a normal sample), so
+    the p-value is not limited to 1/(n + 1) as a Monte Carlo one is. NaN for fewer than 3 draws.
+    """
+    draws = np.asarray(draws, dtype=float)
+    draws = draws[np.isfinite(draws)]
+    n = draws.size
+    if n < 3:
+        return float("nan")
+    scale = np.std(draws, ddof=1) * np.sqrt(1.0 + 1.0 / n)
+    if scale <= 0:
+        return 1.0 if observed == draws[0] else 0.0
+    return float(2.0 * stats.t.sf(abs(observed - np.mean(draws)) / scale, n - 1))
+
+
 def binomial_excess_p(successes, trials, rate):
     """P(X >= successes) for X ~ Binomial(trials, rate): small when there are too many successes."""
     if trials == 0:
@@ -215,7 +268,8 @@ def make_result(name, title, *, null_hypothesis, statistic, value, p_value, thre
     """One test's entry of nulltests.json."""
     return {"name": name, "title": title, "null_hypothesis": null_hypothesis, "statistic": statistic,
             "value": value, "p_value": p_value, "interval": interval, "threshold": threshold,
-            "passed": passed, "skipped": skipped, "note": note, "details": details or {}}
+            "passed": passed, "skipped": skipped, "note": " ".join(note.split()),
+            "details": details or {}}
 
 
 def skipped_result(name, title, null_hypothesis, statistic, reason):
@@ -285,4 +339,7 @@ def suite_summary(results, alpha):
     else:
         lines.append("A consistency test fails: the estimate of k depends on choices it should not "
                      "depend on. Treat k as unreliable until the failing test is understood.")
+        if {row["name"] for row in failed} & {"redshift_permutation", "k0_with_selection"}:
+            lines.append("The redshift trend that the permutation or k = 0 test detects may then be "
+                         "produced by the same problem rather than by a coupling.")
     return lines

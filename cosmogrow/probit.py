@@ -7,12 +7,13 @@ tested against `log_ndtr`; C1-continuous, so optimisers see a smooth function). 
 `log_ndtr` itself; above 10, log Φ > -1e-23 and the table's last value is used.
 
 `log_upper_orthant` is log P(X > h, Y > k) for a standard bivariate normal with correlation
-0 <= rho <= 1, from Plackett's identity d Φ2 / d rho = φ2 integrated by Gauss-Legendre quadrature:
-with 12 or 20 nodes by the largest correlation: from rho = 0 (Φ(-h) Φ(-k) + a positive
-integral: no cancellation) when rho < 0.925, and from
-rho = 1 (Φ(-max(h, k)) minus a positive integral) above, the split used by Genz (2004, Statistics
-and Computing 14, 251) for the bivariate normal. Results are clipped to the bounds that hold for
-rho >= 0 (Slepian): Φ(-h) Φ(-k) <= P <= min(Φ(-h), Φ(-k)), so far-tail values stay finite.
+0 <= rho <= 1, from Plackett's identity d Φ2 / d rho = φ2 integrated by Gauss-Legendre quadrature
+(12 nodes when every rho < 0.8, else 20): from rho = 0 (Φ(-h) Φ(-k) + a positive integral, so
+no cancellation) when rho < 0.925, and from rho = 1 (Φ(-max(h, k)) minus a positive integral)
+above, the split used by Genz (2004, Statistics and Computing 14, 251) for the bivariate normal.
+Results are clipped to the bounds that hold for rho >= 0 (Slepian): Φ(-h) Φ(-k) <= P <=
+min(Φ(-h), Φ(-k)), so far-tail values stay finite. Accuracy: |error| < 1e-8 in log P for
+|h|, |k| <= 9 (tested against adaptive quadrature).
 """
 
 import numpy as np
@@ -20,8 +21,8 @@ from scipy.special import log_ndtr, roots_legendre
 
 _LO, _HI, _STEP = -40.0, 10.0, 1.0 / 64.0
 _RHO_SWITCH = 0.925
-# Gauss-Legendre orders by the largest correlation in a call (12 nodes keep far tails exact)
-_ORDERS = ((0.5, 12), (1.0, 20))
+# Gauss-Legendre orders by the largest correlation in a call (12 nodes suffice below 0.8)
+_ORDERS = ((0.8, 12), (1.0, 20))
 
 
 def _hermite_table():
@@ -38,12 +39,14 @@ _COEF, _N_CELLS = _hermite_table()
 _GAUSS_LEGENDRE = {order: roots_legendre(order) for _, order in _ORDERS}
 
 
-def log_phi(x):
+def log_phi(x, *, overwrite_input=False):
     """log Φ(x), the log of the standard normal CDF, for any array (see the module note).
 
     Parameters
     ----------
     x : array_like
+    overwrite_input : bool
+        Use `x` (a float array) as scratch space, saving allocations in a hot loop.
 
     Returns
     -------
@@ -51,18 +54,23 @@ def log_phi(x):
     """
     x = np.asarray(x, dtype=float)
     scalar = x.ndim == 0
-    x = np.atleast_1d(x)
-    t = (x - _LO) * (1.0 / _STEP)
+    if scalar or not overwrite_input or not x.flags.writeable:
+        x = np.array(x, dtype=float, ndmin=1)
+    low = x < _LO
+    x_low = x[low] if low.any() else None
+    t = x  # the scratch buffer: t = (x - lo) / step, then its fractional part
+    t -= _LO
+    t *= 1.0 / _STEP
     np.clip(t, 0.0, _N_CELLS - 1e-9, out=t)
     cell = t.astype(np.intp)
-    u = t - cell
+    t -= cell
     out = _COEF[3].take(cell, mode="clip")
+    term = np.empty_like(out)
     for power in (2, 1, 0):
-        out *= u
-        out += _COEF[power].take(cell, mode="clip")
-    low = x < _LO
-    if low.any():
-        out[low] = log_ndtr(x[low])
+        out *= t
+        out += _COEF[power].take(cell, mode="clip", out=term)
+    if x_low is not None:
+        out[low] = log_ndtr(x_low)
     return float(out[0]) if scalar else out
 
 
@@ -96,12 +104,8 @@ def log_upper_orthant(h, k, rho):
     return out.reshape(shape)
 
 
-def _nodes(upper, rho):
-    """Gauss-Legendre nodes and log weights on [0, upper] (upper: 1-d array); shape (n, nodes)."""
-    order = next(order for bound, order in _ORDERS if np.max(rho) < bound or bound == 1.0)
-    nodes, weights = _GAUSS_LEGENDRE[order]
-    half = 0.5 * upper[:, None]
-    return half * (nodes + 1.0), np.log(half * weights)
+def _order(rho):
+    return next(order for bound, order in _ORDERS if np.max(rho, initial=0.0) < bound or bound == 1.0)
 
 
 def _logsumexp_rows(terms):
@@ -111,17 +115,39 @@ def _logsumexp_rows(terms):
 
 
 def _from_independent(h, k, rho, log_product):
-    """Φ(-h)Φ(-k) + (1/2π) ∫_0^asin(rho) exp(-(h²-2hk sinθ+k²)/(2cos²θ)) dθ, in logs."""
-    theta, log_w = _nodes(np.arcsin(rho), rho)
-    hh, kk = h[:, None], k[:, None]
-    exponent = -(hh**2 - 2.0 * hh * kk * np.sin(theta) + kk**2) / (2.0 * np.cos(theta) ** 2)
-    log_integral = _logsumexp_rows(exponent + log_w) - np.log(2.0 * np.pi)
+    """log[Φ(-h)Φ(-k) + (1/2π) ∫_0^rho exp(-Q(r)) / sqrt(1 - r²) dr], Q = (h²-2hkr+k²)/(2(1-r²)).
+
+    r = rho t with fixed Gauss-Legendre nodes t on [0, 1] (1/sqrt(1 - r²) <= 2.7 for rho < 0.925).
+    The exponent is referred to its maximum over [0, rho], known in closed form (Q is smallest at
+    r* = B / (A + sqrt(A² - B²)), A = h² + k², B = 2hk, clipped to [0, rho]), so exp never overflows.
+    """
+    nodes, weights = _GAUSS_LEGENDRE[_order(rho)]
+    t, log_w = 0.5 * (nodes + 1.0), np.log(0.5 * weights)
+    a, b = h**2 + k**2, 2.0 * h * k
+    root = a + np.sqrt(np.maximum(a**2 - b**2, 0.0))
+    r_star = np.clip(np.where(root > 0, b / np.where(root > 0, root, 1.0), 0.0), 0.0, rho)
+    ref = -0.5 * (a - b * r_star) / (1.0 - r_star**2) - 0.5 * np.log1p(-rho**2)
+    # two (n, nodes) buffers, updated in place (allocating these arrays costs more than the maths)
+    exponent = np.multiply(rho[:, None], t)  # r
+    one_minus = np.multiply(exponent, exponent)
+    np.subtract(1.0, one_minus, out=one_minus)  # 1 - r²
+    exponent *= b[:, None]
+    np.subtract(a[:, None], exponent, out=exponent)  # a - b r
+    exponent /= one_minus
+    exponent += np.log(one_minus, out=one_minus)
+    exponent *= -0.5
+    exponent += log_w
+    exponent -= ref[:, None]
+    total = np.sum(np.exp(exponent, out=exponent), axis=1)
+    log_integral = ref + np.log(total * rho) - np.log(2.0 * np.pi)
     return np.logaddexp(log_product, log_integral)
 
 
 def _from_identical(h, k, rho, log_min):
     """Φ(-max(h,k)) - (1/2π) ∫_0^acos(rho) exp(-(h-k)²/(2sin²θ) - hk/(1+cosθ)) dθ, in logs."""
-    theta, log_w = _nodes(np.arccos(rho), np.array([1.0]))
+    nodes, weights = _GAUSS_LEGENDRE[_order(1.0)]
+    half = 0.5 * np.arccos(rho)[:, None]
+    theta, log_w = half * (nodes + 1.0), np.log(half) + np.log(weights)
     hh, kk = h[:, None], k[:, None]
     exponent = -((hh - kk) ** 2) / (2.0 * np.sin(theta) ** 2) - hh * kk / (1.0 + np.cos(theta))
     log_integral = _logsumexp_rows(exponent + log_w) - np.log(2.0 * np.pi)

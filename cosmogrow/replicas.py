@@ -17,7 +17,7 @@ from scipy import stats
 from . import simulate
 from .config import load_toml
 from .errors import ConfigError
-from .estimate import laplace, start_walkers
+from .estimate import gradient, laplace, start_walkers
 from .fit import FitData, build_model
 from .outputs import sha256_file
 from .sampler import default_walkers, run_ensemble
@@ -90,8 +90,8 @@ def draw_replica(config, data, truth, seed):
 
     Parameters
     ----------
-    config : config.RunConfig of the data (kept for symmetry with `fit_replica`; the model's
-        fixed options are already in `truth`)
+    config : config.RunConfig of the data; its model.host_errors says how the true hosts behind
+        the observed ones are drawn (as the fit's likelihood assumes them)
     data : fit.FitData, the real data (catalogue, selections per sample, cosmology)
     truth : dict, a truth table (see `design_truth`)
     seed : int or SeedSequence
@@ -100,7 +100,8 @@ def draw_replica(config, data, truth, seed):
     -------
     catalog.Catalog
     """
-    return simulate.resample_hosts(data.catalog, truth, data.selections, data.cosmology, seed=seed)
+    return simulate.resample_hosts(data.catalog, truth, data.selections, data.cosmology, seed=seed,
+                                   host_errors=config.model.host_errors)
 
 
 def draw_simulated(sim_config, truth, seed):
@@ -175,7 +176,7 @@ def fit_replica(config, data, catalog, *, mode="fast", selection_aware=True, see
         out = {"k": k_map, "k_std": k_std,
                "interval68": [k_map - _Z68 * k_std, k_map + _Z68 * k_std],
                "interval95": [k_map - _Z95 * k_std, k_map + _Z95 * k_std],
-               "converged": bool(approx.success and np.isfinite(k_std) and k_std > 0),
+               "converged": laplace_is_sound(model, approx),
                "tau_max": float("nan"), "n_steps": 0}
         if n_draws:
             out["k_draws"] = make_rng(draw_seed).normal(k_map, k_std, int(n_draws))
@@ -195,6 +196,18 @@ def fit_replica(config, data, catalog, *, mode="fast", selection_aware=True, see
         # evenly spaced over the (step-major) flat chain, i.e. spread over the whole run
         out["k_draws"] = k[np.linspace(0, len(k) - 1, int(n_draws)).round().astype(int)]
     return out
+
+
+def laplace_is_sound(model, approx, tolerance=0.01):
+    """Whether a MAP + Laplace result can be trusted: minus the Hessian is positive definite and
+    the Newton step from the MAP is below `tolerance` posterior standard deviations in every
+    parameter. (L-BFGS-B's own flag is not used: it often reports an abnormal line-search end
+    exactly at the optimum, where a Nelder-Mead polish moves no parameter by 1e-7.)"""
+    curvature = -np.asarray(approx.hessian)
+    if not np.all(np.isfinite(curvature)) or np.any(np.linalg.eigvalsh(curvature) <= 0):
+        return False
+    step = np.linalg.solve(curvature, gradient(model, approx.theta))
+    return bool(np.all(np.abs(step) < tolerance * approx.std))
 
 
 def _children(seed, n):

@@ -53,29 +53,61 @@ def _group_terms(group, mu, delta, var, m_obs, e2, numerator=True):
     kind, lim, w2 = group.kind, group.lim, group.w2
     num = 0.0
     if kind == "o":
-        return num, log_phi((mu + delta - lim[0]) / np.sqrt(var + e2 + w2[0]))
+        spread = np.add(var, e2 + w2[0], out=_buffer(mu, delta, var, e2, lim[0]))
+        np.sqrt(spread, out=spread)
+        return num, log_phi(np.divide(mu + (delta - lim[0]), spread, out=spread), overwrite_input=True)
     if kind == "oo":
         var1, var2 = var + e2 + w2[0], var + e2 + w2[1]
         rho = (var + e2) / np.sqrt(var1 * var2)
         centre = mu + delta
         return num, log_upper_orthant((lim[0] - centre) / np.sqrt(var1),
                                       (lim[1] - centre) / np.sqrt(var2), rho)
+    if kind == "i":
+        return _single_intrinsic(mu, delta, var, m_obs, e2, lim[0], w2[0], numerator)
     if numerator:
         total = var + e2
         v = var * e2 / total
         mu_p = (mu * e2 + (m_obs - delta) * var) / total
         if kind == "ii":
             num = _orthant(mu_p, v, lim, w2)
-        else:  # "i" and "io": one intrinsic cut in the numerator
+        else:  # "io": one intrinsic cut in the numerator
             num = log_phi((mu_p - lim[0]) / np.sqrt(v + w2[0]))
-    if kind == "i":
-        return num, log_phi((mu - lim[0]) / np.sqrt(var + w2[0]))
     if kind == "ii":
         return num, _orthant(mu, var, lim, w2)
     var1, var2 = var + w2[0], var + e2 + w2[1]  # "io": intrinsic first, observed second
     rho = var / np.sqrt(var1 * var2)
     return num, log_upper_orthant((lim[0] - mu) / np.sqrt(var1),
                                   (lim[1] - mu - delta) / np.sqrt(var2), rho)
+
+
+def _buffer(*arrays):
+    return np.empty(np.broadcast_shapes(*(np.shape(a) for a in arrays)))
+
+
+def _single_intrinsic(mu, delta, var, m_obs, e2, lim, w2, numerator):
+    """One intrinsic cut: (log Φ((mu_p - l)/sqrt(v + w²)), log Φ((mu - l)/sqrt(var + w²))).
+
+    mu_p = (mu e² + (m_obs - delta) var)/T and v = var e²/T with T = var + e², rearranged as
+    ((mu - l) e² + (m_obs - delta - l) var) / sqrt(T (var e² + w² T)); written with in-place
+    operations because allocating (n_walkers, N) temporaries costs as much as the arithmetic.
+    """
+    above = np.subtract(mu, lim, out=_buffer(mu, delta, var, m_obs, e2, lim))
+    total = np.add(var, e2, out=np.empty_like(above))
+    num = 0.0
+    if numerator:
+        spread = np.multiply(total, w2, out=np.empty_like(above))
+        spread += var * e2
+        spread *= total
+        np.sqrt(spread, out=spread)
+        arg = np.multiply(above, e2, out=total)
+        arg += (m_obs - delta - lim) * var
+        arg /= spread
+        num = log_phi(arg, overwrite_input=True)
+        total = spread
+    np.add(var, w2, out=total)
+    np.sqrt(total, out=total)
+    above /= total
+    return num, log_phi(above, overwrite_input=True)
 
 
 def _orthant(centre, var, lim, w2):
@@ -150,7 +182,7 @@ class SelectionSet:
         for name, spec in selections.items():
             where = f"sample '{name}'"
             models = build_selection(spec, where=where)
-            if name not in present:
+            if models and name not in present:
                 raise ConfigError(f"{where}: a selection is given but the catalogue has no such "
                                   f"sample; samples: {', '.join(map(str, present))}")
             if models:
@@ -216,7 +248,8 @@ class SelectionSet:
 
     def log_probability(self, mu_true, delta, var_lat, m_err):
         """log P(S | s, z) from the black-hole-mass cuts alone (the likelihood's normaliser)."""
-        shape = np.broadcast_shapes(*(np.shape(a) for a in (mu_true, delta, var_lat, m_err)), (self.n_rows,))
+        shape = np.broadcast_shapes(*(np.shape(a) for a in (mu_true, delta, var_lat, m_err)),
+                                    (self.n_rows,))
         out = np.zeros(shape)
         for group in self._groups:
             rows = group.rows
@@ -258,14 +291,16 @@ class SelectionSet:
         return keep
 
     def describe(self):
-        """JSON-friendly description: per sample, its models and the range of its thresholds."""
+        """JSON-friendly description: per sample, its models (`to_dict`, which `build_selection`
+        reads back), the mass each acts on, the range of its thresholds (log10 Msun; log_mstar_min
+        for host cuts) and its probit width (dex)."""
         out = []
         for name, (models, rows) in self._samples.items():
             cuts = []
             for j, model in enumerate(models):
-                lim = self._slot_lim[j, rows]
-                cuts.append({**model.to_dict(), "threshold_min": float(np.min(lim)),
-                             "threshold_max": float(np.max(lim))})
+                lim, width = self._slot_lim[j, rows], self._slot_width[j, rows]
+                cuts.append({**model.to_dict(), "on": model.on, "threshold_min": float(np.min(lim)),
+                             "threshold_max": float(np.max(lim)), "probit_width": float(np.max(width))})
             n_rows = self.n_rows if isinstance(rows, slice) else len(rows)
             out.append({"sample": name, "n_rows": int(n_rows), "selection": cuts})
         return out

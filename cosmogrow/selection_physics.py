@@ -156,7 +156,7 @@ class SphereOfInfluence:
         return 2.0 * self.msigma_scatter / (self.msigma_slope - 2.0)
 
     def to_dict(self):
-        return {"kind": self.kind, **asdict(self), "width": self.width}
+        return {"kind": self.kind, **asdict(self)}
 
 
 @dataclass(frozen=True)

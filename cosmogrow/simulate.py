@@ -25,7 +25,10 @@ from .background import comoving_volume_element, describe
 from .catalog import Catalog
 from .errors import ConfigError
 from .massfunction import HostMassSampler, inverse_cdf_table
+from .model import calibrated_hosts
 from .seeding import child_seed, make_rng
+from .selection import _INTRINSIC as _INTRINSIC_CODE
+from .selection import _OBSERVED as _OBSERVED_CODE
 from .selection import SelectionSet
 from .simulate_config import parse_sim_config, parse_truth
 
@@ -71,8 +74,13 @@ def simulate_population(sim_config, seed=None):
     Parameters
     ----------
     sim_config : dict
-        Parsed TOML: ``seed``, ``[cosmology]``, ``[mass_function]``, ``[truth]``, ``[[sample]]``
-        (keys, defaults and units in `cosmogrow.simulate_config`).
+        Parsed TOML: ``seed``, ``[cosmology]`` (default Planck18), ``[mass_function]`` (default
+        Baldry et al. 2012), ``[truth]`` and ``[[sample]]`` tables (full reference in
+        `cosmogrow.simulate_config`). Defaults: truth k = 0, alpha = 8.69, beta = 1,
+        sigma_int = 0.28 dex, gamma = 0, s_pivot = 11, z_ref = 0, delta = {} (0 for every
+        method), f_out = 0, sigma_out = 1 dex; per sample (name, n, z_range = [lo, hi] and method
+        required) log_mbh_err = 0.1 / 0.2 / 0.4 dex for dynamical / reverberation / virial,
+        log_mstar_err = 0.15 dex, log_mstar_min = 10.0, log_mstar_max = 12.5, no selection.
     seed : int, SeedSequence or Generator, optional
         Wins over the configuration's ``seed``; with neither, fresh entropy is drawn and recorded.
         Sample i draws from the stream ``child_seed(seed, i)``, independent of the other samples
@@ -173,18 +181,22 @@ def _true_masses(truth, s_true, z, sigma_int, rng):
     return m_ref - truth.k * x
 
 
-def resample_hosts(catalog, truth, selections_by_sample, cosmo, seed=None, *, scatter_hosts=True):
+def resample_hosts(catalog, truth, selections_by_sample, cosmo, seed=None, *, host_errors="calibrated"):
     """Redraw only the black-hole masses of a catalogue, keeping its design.
 
-    Every row keeps its id, z, log_mstar (as observed), errors, sample and method. Its true host
-    mass is drawn as s = log_mstar + N(0, log_mstar_err²) (`scatter_hosts`, the default), which
-    is the host-error model the fit's likelihood assumes (m | s_obs ~ N(mu, sigma_int² +
-    beta² e_s²)), so a resampled catalogue is an exact draw from the fitted model; with
-    ``scatter_hosts=False`` the observed host mass is taken as the true one. Then m follows the
-    forward model of the module note and m_obs = m + delta + N(0, log_mbh_err²). With selection,
-    each row is redrawn until it is selected (vectorised rejection over the rows still pending),
-    so each row is a draw from p(m_obs | S, s_obs, z). A row gets up to ~8e4 proposals
-    (`_MAX_ROUNDS` rounds of up to `_MAX_COPIES`): rows accepted less often than ~1e-5 raise.
+    Every row keeps its id, z, log_mstar (as observed), errors, sample and method; only log_mbh
+    changes. The true host mass behind each row is drawn from the distribution the fit's
+    likelihood assumes for it given the observed one (`host_errors`, as the run configuration's
+    model.host_errors), so a resampled catalogue is an exact draw from the fitted model:
+    - "calibrated" (the fit's default): regression calibration, s ~ N(calibrated mean,
+      calibrated error²) from `cosmogrow.model.calibrated_hosts`;
+    - "first_order": s = log_mstar + N(0, log_mstar_err²) (a flat prior on the true host);
+    - "fixed": s = log_mstar (host errors then enter only the likelihood).
+    Then m follows the forward model of the module note and m_obs = m + delta + N(0, log_mbh_err²).
+    With selection, each row is redrawn until it is selected (vectorised rejection over the rows
+    still pending), so each row is a draw from p(m_obs | S, s_obs, z). A row gets up to ~8e4
+    proposals (`_MAX_ROUNDS` rounds of up to `_MAX_COPIES`): rows accepted less often than ~1e-5
+    raise.
 
     Parameters
     ----------
@@ -193,7 +205,7 @@ def resample_hosts(catalog, truth, selections_by_sample, cosmo, seed=None, *, sc
     selections_by_sample : dict, sample name -> selection (tables or models); may be empty
     cosmo : astropy cosmology
     seed : int, SeedSequence or Generator, optional
-    scatter_hosts : bool
+    host_errors : "calibrated", "first_order" or "fixed"
 
     Returns
     -------
@@ -202,7 +214,8 @@ def resample_hosts(catalog, truth, selections_by_sample, cosmo, seed=None, *, sc
     Raises
     ------
     ConfigError
-        Rows that the selection essentially never accepts (e.g. failing a hard host-mass cut).
+        An unknown `host_errors`, or rows that the selection essentially never accepts (e.g.
+        failing a hard host-mass cut).
     """
     truth = parse_truth(truth)
     rng = make_rng(seed)
@@ -213,15 +226,26 @@ def resample_hosts(catalog, truth, selections_by_sample, cosmo, seed=None, *, sc
         raise ConfigError(f"resample_hosts: {len(bad)} row(s) fail a host_mass_cut of their sample and "
                           f"can never be selected (e.g. id '{catalog.ids[bad[0]]}', sample "
                           f"'{catalog.sample[bad[0]]}', log_mstar {catalog.log_mstar[bad[0]]:.3f})")
-    sigma = np.array([truth.scatter_of(name) for name in catalog.sample], dtype=float)
-    delta = np.array([truth.offset_of(method) for method in catalog.method], dtype=float)
-    host_err = catalog.log_mstar_err if scatter_hosts else np.zeros(n)
+    host_mean, host_err = _latent_hosts(catalog, host_errors)
+    sigma, delta = np.empty(n), np.empty(n)
+    for name in catalog.sample_names:
+        sigma[catalog.sample == name] = truth.scatter_of(name)
+    for method in catalog.method_names:
+        delta[catalog.method == method] = truth.offset_of(method)
     m_obs = np.full(n, np.nan)
     pending = np.arange(n)
     for round_index in range(_MAX_ROUNDS):
+        if round_index == _EXACT_AFTER_ROUNDS:
+            exact = _single_cut_rows(selection, pending) if truth.f_out == 0 else pending[:0]
+            if len(exact):
+                m_obs[exact] = _draw_truncated(truth, catalog, selection, exact, host_mean, host_err,
+                                               sigma, delta, rng)
+                pending = np.setdiff1d(pending, exact, assume_unique=True)
+                if not len(pending):
+                    return catalog.replace(log_mbh=m_obs)
         copies = int(min(2**round_index, _MAX_COPIES, max(1, _MAX_BATCH // len(pending))))
         rows = np.repeat(pending, copies)
-        s_true = catalog.log_mstar[rows] + host_err[rows] * rng.standard_normal(len(rows))
+        s_true = host_mean[rows] + host_err[rows] * rng.standard_normal(len(rows))
         m_true = _true_masses(truth, s_true, catalog.z[rows], sigma[rows], rng)
         m_draw = m_true + delta[rows] + catalog.log_mbh_err[rows] * rng.standard_normal(len(rows))
         keep = selection.draw_selected(m_true, m_draw, rng, rows=rows)
@@ -234,3 +258,56 @@ def resample_hosts(catalog, truth, selections_by_sample, cosmo, seed=None, *, sc
     raise ConfigError(f"resample_hosts: {len(pending)} row(s) of sample(s) {', '.join(names)} were never "
                       f"selected in {_MAX_ROUNDS} rounds of redraws (e.g. id '{catalog.ids[pending[0]]}'); "
                       "the selection rejects them under this truth (check host-mass cuts and thresholds)")
+
+
+HOST_ERROR_MODES = ("calibrated", "first_order", "fixed")
+# Rows still unselected after this many rejection rounds (acceptance below ~1/15) and subject to a
+# single black-hole-mass cut are drawn exactly from the truncated distribution instead.
+_EXACT_AFTER_ROUNDS = 4
+
+
+def _single_cut_rows(selection, rows):
+    """The rows (of `rows`) whose selection is exactly one cut on the black-hole mass."""
+    on = selection._slot_on[:, rows]
+    mass_cuts = np.sum((on == _INTRINSIC_CODE) | (on == _OBSERVED_CODE), axis=0)
+    return rows[mass_cuts == 1]
+
+
+def _draw_truncated(truth, catalog, selection, rows, host_mean, host_err, sigma, delta, rng):
+    """Exact draws of m_obs given selection for rows with a single probit cut.
+
+    The latent mass is Gaussian, m ~ N(mu, v) with the host uncertainty folded in; a probit cut on
+    a Gaussian variable y (m, or m_obs = m + delta + e) keeps it when u = y - w eps >= m_lim, so
+    u is drawn from its truncated normal and y | u from the conditional normal; for a cut on m,
+    m_obs = m + delta + e afterwards. No rejection, so rows of tiny acceptance cost nothing extra.
+    """
+    from scipy import stats
+
+    x = np.log10((1.0 + catalog.z[rows]) / (1.0 + truth.z_ref))
+    mu = (truth.alpha + truth.beta * (host_mean[rows] + truth.gamma * x - truth.s_pivot) - truth.k * x)
+    var = sigma[rows] ** 2 + truth.beta**2 * host_err[rows] ** 2
+    err = catalog.log_mbh_err[rows]
+    on = selection._slot_on[:, rows]
+    slot = np.argmax((on == _INTRINSIC_CODE) | (on == _OBSERVED_CODE), axis=0)
+    cols = np.arange(len(rows))
+    observed = on[slot, cols] == _OBSERVED_CODE
+    lim = selection._slot_lim[:, rows][slot, cols]
+    width2 = selection._slot_width[:, rows][slot, cols] ** 2
+    centre = mu + np.where(observed, delta[rows], 0.0)
+    var_y = var + np.where(observed, err**2, 0.0)
+    spread_u = np.sqrt(var_y + width2)
+    low = (lim - centre) / spread_u
+    u = centre + spread_u * stats.truncnorm.rvs(low, np.inf, random_state=rng)
+    gain = var_y / (var_y + width2)
+    y = centre + gain * (u - centre) + np.sqrt(var_y * (1 - gain)) * rng.standard_normal(len(rows))
+    return np.where(observed, y, y + delta[rows] + err * rng.standard_normal(len(rows)))
+
+
+def _latent_hosts(catalog, mode):
+    """Mean and spread (log10 Msun, dex) of each row's true host given the observed one."""
+    if mode not in HOST_ERROR_MODES:
+        raise ConfigError(f"resample_hosts: host_errors: expected one of {', '.join(HOST_ERROR_MODES)}, "
+                          f"got {mode!r}")
+    if mode == "fixed":
+        return np.asarray(catalog.log_mstar, dtype=float), np.zeros(len(catalog))
+    return calibrated_hosts(catalog, mode)

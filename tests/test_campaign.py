@@ -36,7 +36,7 @@ N_PER_SAMPLE = 30
 R = 200
 
 
-def write_design(folder, *, cut):
+def write_design(folder, *, cut, host_errors=None):
     """Catalogues of a local and a z ~ 1 sample (k = 1) and their run configuration."""
     folder.mkdir(parents=True, exist_ok=True)
     rng = np.random.default_rng(2024)
@@ -51,8 +51,9 @@ def write_design(folder, *, cut):
     write_csv(high, folder / "high.csv")
     selection = (f'selection = {{ kind = "mass_cut", log_mbh_min = {CUT}, on = "observed" }}'
                  if cut is not None else "")
+    model = f'[model]\nhost_errors = "{host_errors}"\n' if host_errors else ""
     (folder / "run.toml").write_text(
-        '[[sample]]\nname = "S0"\npath = "local.csv"\n'
+        f'{model}[[sample]]\nname = "S0"\npath = "local.csv"\n'
         f'[[sample]]\nname = "S1"\npath = "high.csv"\n{selection}\n')
     return folder / "run.toml"
 
@@ -66,6 +67,12 @@ def write_campaign(folder, body):
 def run_serial(path, out, seed=None):
     spec = read_campaign_config(path).with_seed(seed)
     return run_campaign(prepare_campaign(spec), out, SerialExecutor())
+
+
+def run_pool(path, out):
+    """Two spawned workers with one BLAS thread each: on a busy machine several times faster than
+    this process, whose OpenBLAS threads contend for the cores."""
+    return run_campaign(prepare_campaign(read_campaign_config(path)), out, ProcessExecutor(2))
 
 
 def binomial_band(p, n, width=3.0):
@@ -97,7 +104,7 @@ def plain_campaign(plain_design, tmp_path_factory):
     folder = tmp_path_factory.mktemp("plain_campaign")
     path = write_campaign(folder, f'seed = 101\ndesign = "{plain_design}"\n[grid]\nk = [0.0, 3.0]\n'
                                   f'realisations = {R}\n[sbc]\nn = 200\nprior = [-1.0, 4.0]\n')
-    return run_serial(path, folder / "out")
+    return run_pool(path, folder / "out")
 
 
 @pytest.fixture(scope="module")
@@ -105,7 +112,7 @@ def cut_campaign(cut_design, tmp_path_factory):
     folder = tmp_path_factory.mktemp("cut_campaign")
     path = write_campaign(folder, f'seed = 202\ndesign = "{cut_design}"\n[grid]\nk = [0.0, 3.0]\n'
                                   f'realisations = {R}\n[estimator]\ncompare_plain = true\n')
-    return run_serial(path, folder / "out")
+    return run_pool(path, folder / "out")
 
 
 # ----- calibration ---------------------------------------------------------------------------
@@ -237,8 +244,9 @@ def test_killed_campaign_resumes_to_identical_results(small_campaign, tmp_path):
     command = [sys.executable, "-m", "cosmogrow.cli", "inject", "--config", str(path), "--out",
                str(out), "--workers", "1", "--quiet"]
     env = {**os.environ, "PYTHONPATH": str(REPO)}
+    # a session of its own, so that kill -9 reaches the campaign and its worker process at once
     process = subprocess.Popen(command, cwd=REPO, env=env, stdout=subprocess.DEVNULL,
-                               stderr=subprocess.PIPE)
+                               stderr=subprocess.PIPE, start_new_session=True)
     journal = out / JOURNAL
     deadline = time.monotonic() + 120
     while time.monotonic() < deadline and process.poll() is None:
@@ -246,7 +254,7 @@ def test_killed_campaign_resumes_to_identical_results(small_campaign, tmp_path):
             break
         time.sleep(0.01)
     assert process.poll() is None, process.stderr.read().decode()
-    process.send_signal(signal.SIGKILL)
+    os.killpg(process.pid, signal.SIGKILL)
     process.wait()
     process.stderr.close()
     n_done = len(read_records(journal)[0])
@@ -278,6 +286,12 @@ def test_journal_ignores_a_torn_last_line(tmp_path):
     assert records[2]["x"] == 1 / 3 and np.isnan(records[1]["x"])
 
 
+def test_journal_is_locked_while_open(tmp_path):
+    with Journal(tmp_path / "j.jsonl"):
+        with pytest.raises(ConfigError, match="another campaign is writing to this journal"):
+            Journal(tmp_path / "j.jsonl")
+
+
 def test_journal_of_another_campaign_is_refused(small_campaign, tmp_path):
     path, _ = small_campaign
     spec = read_campaign_config(path)
@@ -303,6 +317,29 @@ def test_simulation_design_campaign(tmp_path):
     assert list(rows["estimator"].unique()) == ["selection-aware"]
     assert (rows["n_objects"] == 60).all() and (rows["error"] == "").all()
     assert rows["k_estimate"].nunique() == 6  # every mock is its own draw
+
+
+# ----- truth tables ---------------------------------------------------------------------------
+def test_design_truth_names_every_parameter():
+    from cosmogrow.config import ModelOptions
+    from cosmogrow.model import CoupledGrowthModel, build_design
+    from cosmogrow.replicas import apply_overrides, design_truth
+
+    catalog = mock_catalog(np.random.default_rng(1), 1.0,
+                           samples=((0.02, 20, "dynamical"), (1.0, 20, "virial")))
+    options = ModelOptions(form="relation", scatter="per_sample", zero_point_method="dynamical",
+                           host_growth=0.5, log_mstar_pivot=10.5, z_ref=0.1)
+    model = CoupledGrowthModel(build_design(catalog, options), options)
+    assert model.names == ("k", "alpha", "beta", "sigma_int[S0]", "sigma_int[S1]", "delta[virial]")
+    truth = design_truth(model, [9.0, 8.4, 0.9, 0.25, 0.35, 0.2], k=2.0)
+    assert truth == {"k": 2.0, "alpha": 8.4, "beta": 0.9, "sigma_int": {"S0": 0.25, "S1": 0.35},
+                     "delta": {"dynamical": 0.0, "virial": 0.2}, "gamma": 0.5, "s_pivot": 10.5,
+                     "z_ref": 0.1}
+    changed = apply_overrides(truth, {"sigma_int": 0.3, "delta": {"virial": -0.1}})
+    assert changed["sigma_int"] == {"S0": 0.3, "S1": 0.3} and changed["delta"]["virial"] == -0.1
+    assert truth["delta"]["virial"] == 0.2  # the original is not modified
+    with pytest.raises(ConfigError, match=r"truth.delta.spectral: unknown name"):
+        apply_overrides(truth, {"delta": {"spectral": 0.1}})
 
 
 # ----- configuration errors -------------------------------------------------------------------

@@ -106,3 +106,21 @@ def test_degenerate_offset_is_reported(tmp_path):
     stds = [row["k_std"] for row in widths]
     # the width of k follows the offset prior: sd(k) ≈ sd(delta)/log10(2) when the offset is free
     assert stds == sorted(stds) and stds[-1] > 3 * stds[0]
+
+
+def test_resume_continues_the_chain(catalogues, tmp_path):
+    import h5py
+
+    folder, local, far = catalogues
+    short = folder / "cap200.toml"
+    short.write_text("[sampler]\nmax_steps = 200\ncheck_every = 100\n")
+    out = tmp_path / "resumable"
+    args = ["fit", str(local), str(far), "--out", str(out), "--seed", "4", "--quiet"]
+    assert main(args + ["--config", str(short)]) == 3
+    with h5py.File(out / "chain.h5") as f:
+        assert f["mcmc"].attrs["iteration"] == 200
+    assert main(args + ["--resume"]) == 0
+    summary = json.loads((out / "summary.json").read_text())
+    with h5py.File(out / "chain.h5") as f:
+        assert f["mcmc"].attrs["iteration"] == summary["convergence"]["n_steps"] > 200
+        assert np.all(np.isfinite(f["mcmc"]["chain"][:]))

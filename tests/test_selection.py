@@ -152,8 +152,9 @@ def test_flux_threshold_against_hand_computation():
     d_l = Planck18.luminosity_distance(z).to_value(u.cm)
     flux = 0.25 * 1.257e38 * 10 ** lim[0] / (10.0 * 4 * np.pi * d_l**2)
     assert flux == pytest.approx(1e-12, rel=5e-4)
-    assert width[0] == 0.3  # Kollmeier et al. 2006: 0.3 dex
-    assert lim[0] == pytest.approx(np.log10(10 * 4 * np.pi * d_l**2 * 1e-12 / 1.257e38) + np.log10(4), abs=3e-4)
+    assert width[0] == 0.3  # Kollmeier et al. 2006: 0.3 dex (REFERENCES.md [paper, abstract])
+    by_hand = np.log10(10 * 4 * np.pi * d_l**2 * 1e-12 / 1.257e38) + np.log10(4)
+    assert lim[0] == pytest.approx(by_hand, abs=3e-4)
 
 
 def test_flux_probit_is_the_eddington_ratio_distribution():
@@ -177,12 +178,13 @@ def test_sphere_of_influence_threshold_against_hand_computation():
     model = build_selection({"kind": "sphere_of_influence"})[0]
     z = np.array([0.003, 0.02])
     lim, width = model.threshold(z, np.full(2, 11.0), Planck18)
-    # By hand: at the threshold, σ from Kormendy & Ho 2013 (8.49, 4.38, 200 km/s) gives
+    # By hand: at the threshold, σ from Kormendy & Ho 2013 (8.49, 4.38, 200 km/s; REFERENCES.md
+    # [transcribed]) gives
     # r_inf / D_A = 0.1 arcsec (HST-class resolution, common practice).
     sigma = 200.0 * 10 ** ((lim - 8.49) / 4.38)
-    r_inf_pc = 4.3009e-3 * 10**lim / sigma**2
+    r_inf_pc = 4.3009e-3 * 10**lim / sigma**2  # G in pc (km/s)² / Msun (REFERENCES.md)
     d_a_pc = Planck18.angular_diameter_distance(z).to_value(u.pc)
-    assert np.allclose(r_inf_pc / d_a_pc * 206264.806, 0.1, rtol=1e-4)
+    assert np.allclose(r_inf_pc / d_a_pc * 206264.806, 0.1, rtol=1e-4)  # 206264.806″ per radian
     assert np.allclose(width, 2 * 0.29 / (4.38 - 2))  # the derived width, not the M-σ scatter
 
 
@@ -250,10 +252,18 @@ def test_rows_failing_hard_observed_cuts_are_reported():
 
     catalog = Catalog.from_columns(z=[0.5, 0.5, 0.5], log_mbh=[8.0, 8.5, 9.0], log_mbh_err=[0.1] * 3,
                                    log_mstar=[11.0, 10.0, 11.0], log_mstar_err=[0.1] * 3, sample="s")
-    cuts = SelectionSet.compile({"s": [{"kind": "mass_cut", "log_mbh_min": 8.4},
-                                       {"kind": "host_mass_cut", "log_mstar_min": 10.5}]}, catalog, Planck18)
+    spec = [{"kind": "mass_cut", "log_mbh_min": 8.4}, {"kind": "host_mass_cut", "log_mstar_min": 10.5}]
+    cuts = SelectionSet.compile({"s": spec}, catalog, Planck18)
     assert cuts.rows_failing_hard_cuts.tolist() == [0, 1]
-    assert cuts.describe()[0]["n_rows"] == 3
+    described = cuts.describe()[0]
+    assert described["n_rows"] == 3 and described["selection"][0]["threshold_min"] == 8.4
+    soi = SelectionSet.from_arrays({"s": {"kind": "sphere_of_influence"}}, z=np.array([0.01]),
+                                   log_mstar=np.array([11.0]), sample="s", cosmo=Planck18)
+    entry = soi.describe()[0]["selection"][0]
+    assert entry["on"] == "intrinsic" and entry["probit_width"] == pytest.approx(0.2437, abs=1e-4)
+    # to_dict reads back
+    assert build_selection(build_selection({"kind": "sphere_of_influence"})[0].to_dict())[0].width == \
+        pytest.approx(0.2437, abs=1e-4)
 
 
 def test_log_phi_matches_log_ndtr():
@@ -264,8 +274,8 @@ def test_log_phi_matches_log_ndtr():
 
 @pytest.mark.parametrize("rho", [0.0, 0.2, 0.6, 0.9, 0.95, 0.999])
 def test_upper_orthant_against_quadrature(rho):
-    """P(X > h, Y > k) = ∫_h^∞ φ(t) Φ((ρt - k)/√(1-ρ²)) dt by adaptive quadrature (scipy.integrate.quad)."""
-    for h, k in [(-3.0, 1.0), (0.5, 0.2), (2.0, 4.0), (6.0, 5.5), (-1.0, -2.0)]:
+    """P(X > h, Y > k) = ∫_h^∞ φ(t) Φ((ρt - k)/√(1-ρ²)) dt by adaptive quadrature."""
+    for h, k in [(-3.0, 1.0), (0.5, 0.2), (2.0, 4.0), (6.0, 5.5), (-1.0, -2.0), (9.0, 6.5)]:
         top, other = max(h, k), min(h, k)
         scale = np.sqrt(1 - rho**2)
 
@@ -296,11 +306,14 @@ def test_upper_orthant_against_quadrature(rho):
      r"key 'bolometric_correction': expected a positive number"),
     ({"kind": "flux_limit", "flux_limit": 1e-13, "log_edd_width": -0.3}, r"key 'log_edd_width'"),
     ({"kind": "sphere_of_influence", "msigma_slope": 2.0}, r"key 'msigma_slope': expected a slope > 2"),
-    ({"kind": "sphere_of_influence", "resolution_arcsec": 0}, r"key 'resolution_arcsec': expected a positive"),
+    ({"kind": "sphere_of_influence", "resolution_arcsec": 0},
+     r"key 'resolution_arcsec': expected a positive"),
     ({"kind": "sphere_of_influence", "msigma_scatter": -1}, r"key 'msigma_scatter'"),
     ({"kind": "sphere_of_influence", "sigma_pivot": 0}, r"key 'sigma_pivot': expected a positive"),
-    ({"kind": "sphere_of_influence", "width": 0.3}, r"unknown key\(s\) 'width' for kind 'sphere_of_influence'"),
-    ([{"kind": "mass_cut", "log_mbh_min": 8}, {"kind": "nope"}], r"sample 'bright': selection\[1\]: unknown kind"),
+    ({"kind": "sphere_of_influence", "width": 0.3},
+     r"unknown key\(s\) 'width' for kind 'sphere_of_influence'"),
+    ([{"kind": "mass_cut", "log_mbh_min": 8}, {"kind": "nope"}],
+     r"sample 'bright': selection\[1\]: unknown kind"),
 ])
 def test_build_selection_errors(spec, message):
     with pytest.raises(ConfigError, match=message):

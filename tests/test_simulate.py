@@ -10,6 +10,7 @@ from scipy import special, stats
 from cosmogrow.catalog import Catalog
 from cosmogrow.errors import ConfigError
 from cosmogrow.massfunction import BALDRY2012, HostMassSampler
+from cosmogrow.model import calibrated_hosts
 from cosmogrow.selection import SelectionSet
 from cosmogrow.simulate import RedshiftSampler, resample_hosts, simulate_population
 
@@ -77,7 +78,8 @@ def test_forward_model_slope_and_scatter():
     truth = {"k": 2.0, "alpha": 8.0, "beta": 1.2, "sigma_int": 0.25, "gamma": 0.5, "z_ref": 0.1,
              "delta": {"virial": 0.3}, "f_out": 0.2, "sigma_out": 0.5}
     cfg = {"seed": 4, "truth": truth,
-           "sample": [{"name": "v", "n": 40000, "z_range": [0.0, 3.0], "method": "virial", "log_mstar_err": 1e-6}]}
+           "sample": [{"name": "v", "n": 40000, "z_range": [0.0, 3.0], "method": "virial",
+                       "log_mstar_err": 1e-6}]}
     catalog, out = simulate_population(cfg)
     x = np.log10((1 + catalog.z) / 1.1)
     resid = catalog.log_mbh - 8.0 - 1.2 * (catalog.log_mstar - 11.0) - 0.3
@@ -135,19 +137,30 @@ def test_resample_hosts_keeps_the_design_and_applies_the_selection():
         log_mstar=rng.normal(11.0, 0.3, n), log_mstar_err=np.full(n, 0.2),
         sample=np.where(np.arange(n) < 2000, "hi", "lo"), method=np.where(np.arange(n) % 2, "virial", "rm"))
     truth = {"k": 0.0, "alpha": 8.5, "sigma_int": 0.3, "delta": {"virial": 0.2}}
-    out = resample_hosts(catalog, truth, {"hi": {"kind": "mass_cut", "log_mbh_min": 8.6}}, Planck18, seed=3)
+    cut = {"hi": {"kind": "mass_cut", "log_mbh_min": 8.6}}
+    out = resample_hosts(catalog, truth, cut, Planck18, seed=3, host_errors="first_order")
     for name in ("ids", "z", "log_mbh_err", "log_mstar", "log_mstar_err", "sample", "method"):
         assert np.array_equal(getattr(out, name), getattr(catalog, name))
     hi = out.sample == "hi"
     assert np.all(out.log_mbh[hi] >= 8.6)
     assert np.mean(out.log_mbh[~hi] < 8.6) > 0.3  # the other sample is not cut
-    # unselected rows: m_obs - mu ~ N(0, sigma² + e_s² + e_m²) (hosts scattered by their error)
+    # unselected rows, first-order host errors: m_obs - mu ~ N(0, sigma² + e_s² + e_m²)
     lo = ~hi
     mu = 8.5 + (catalog.log_mstar[lo] - 11.0) + 0.2 * (catalog.method[lo] == "virial")
     pulls = (out.log_mbh[lo] - mu) / np.sqrt(0.09 + 0.04 + catalog.log_mbh_err[lo] ** 2)
     assert stats.kstest(pulls, "norm").pvalue > 0.01
-    again = resample_hosts(catalog, truth, {"hi": {"kind": "mass_cut", "log_mbh_min": 8.6}}, Planck18, seed=3)
+    again = resample_hosts(catalog, truth, cut, Planck18, seed=3, host_errors="first_order")
     assert np.array_equal(again.log_mbh, out.log_mbh)
+    # the default: hosts from the regression calibration the fit uses (cosmogrow.model)
+    host, host_err = calibrated_hosts(catalog.subset(lo), "calibrated")
+    calibrated = resample_hosts(catalog.subset(lo), truth, {}, Planck18, seed=4)
+    mu = 8.5 + (host - 11.0) + 0.2 * (catalog.method[lo] == "virial")
+    pulls = (calibrated.log_mbh - mu) / np.sqrt(0.09 + host_err**2 + catalog.log_mbh_err[lo] ** 2)
+    assert stats.kstest(pulls, "norm").pvalue > 0.01
+    fixed = resample_hosts(catalog.subset(lo), truth, {}, Planck18, seed=4, host_errors="fixed")
+    mu = 8.5 + (catalog.log_mstar[lo] - 11.0) + 0.2 * (catalog.method[lo] == "virial")
+    pulls = (fixed.log_mbh - mu) / np.sqrt(0.09 + catalog.log_mbh_err[lo] ** 2)
+    assert stats.kstest(pulls, "norm").pvalue > 0.01
 
 
 def test_resample_hosts_accepts_the_simulator_truth():
@@ -158,11 +171,19 @@ def test_resample_hosts_accepts_the_simulator_truth():
 
 def test_resample_hosts_errors():
     catalog = Catalog.from_columns(z=[0.5, 0.6], log_mbh=[8.0, 8.0], log_mbh_err=[0.1, 0.1],
-                                   log_mstar=[11.0, 10.0], log_mstar_err=[0.1, 0.1], sample="s", ids=["a", "b"])
+                                   log_mstar=[11.0, 10.0], log_mstar_err=[0.1, 0.1], sample="s",
+                                   ids=["a", "b"])
+    host_cut = {"s": {"kind": "host_mass_cut", "log_mstar_min": 10.5}}
     with pytest.raises(ConfigError, match=r"1 row\(s\) fail a host_mass_cut .* id 'b', sample 's'"):
-        resample_hosts(catalog, {}, {"s": {"kind": "host_mass_cut", "log_mstar_min": 10.5}}, Planck18, seed=1)
+        resample_hosts(catalog, {}, host_cut, Planck18, seed=1)
     with pytest.raises(ConfigError, match=r"2 row\(s\) of sample\(s\) s were never selected"):
-        resample_hosts(catalog, {}, {"s": {"kind": "mass_cut", "log_mbh_min": 12.0}}, Planck18, seed=1)
+        # two cuts: no exact truncated draw, and rejection cannot reach 4 dex above the mean
+        two_cuts = [{"kind": "mass_cut", "log_mbh_min": 12.0}, {"kind": "mass_cut", "log_mbh_min": 12.0,
+                                                                 "on": "intrinsic", "width": 0.1}]
+        resample_hosts(catalog, {}, {"s": two_cuts}, Planck18, seed=1)
+    with pytest.raises(ConfigError, match=r"host_errors: expected one of calibrated, first_order, fixed, "
+                                          r"got 'exact'"):
+        resample_hosts(catalog, {}, {}, Planck18, seed=1, host_errors="exact")
     with pytest.raises(ConfigError, match=r"truth: unknown key 'kappa'"):
         resample_hosts(catalog, {"kappa": 1.0}, {}, Planck18, seed=1)
 
@@ -189,10 +210,14 @@ def sample_error(message, **sample):
     ({"log_mstar_err": "big"}, r"key 'log_mstar_err'"),
     ({"log_mstar_min": 12.0, "log_mstar_max": 11.0}, r"key 'log_mstar_max': expected > log_mstar_min"),
     ({"colour": "red"}, r"sample 's': unknown key\(s\) 'colour'; expected some of name, n, z_range"),
-    ({"selection": {"kind": "mass_cut"}}, r"sample 's': selection: kind 'mass_cut' needs key\(s\) 'log_mbh_min'"),
+    ({"selection": {"kind": "mass_cut"}},
+     r"sample 's': selection: kind 'mass_cut' needs key\(s\) 'log_mbh_min'"),
 ])
 def test_sample_errors(change, message):
     sample_error(message, **change)
+
+
+ONE = [{"name": "s", "n": 5, "z_range": [0, 1], "method": "dynamical"}]
 
 
 @pytest.mark.parametrize("cfg, message", [
@@ -201,22 +226,21 @@ def test_sample_errors(change, message):
     ({"seed": -1, "sample": [{"name": "s"}]}, r"seed: expected a non-negative integer"),
     ({"sample": [{"n": 5}]}, r"sample\[0\]: key 'name': expected a non-empty string"),
     ({"sample": [{"name": "s", "n": 5, "z_range": [0, 1]}]}, r"sample 's': missing key 'method'"),
-    ({"sample": [{"name": "s", "n": 5, "z_range": [0, 1], "method": "dynamical"}] * 2},
+    ({"sample": ONE * 2},
      r"sample: duplicate name\(s\) 's'"),
-    ({"truth": {"kappa": 1}, "sample": [{"name": "s", "n": 5, "z_range": [0, 1], "method": "dynamical"}]},
+    ({"truth": {"kappa": 1}, "sample": ONE},
      r"truth: unknown key 'kappa'; expected some of k, alpha"),
-    ({"truth": {"sigma_int": -0.1}, "sample": [{"name": "s", "n": 5, "z_range": [0, 1], "method": "dynamical"}]},
+    ({"truth": {"sigma_int": -0.1}, "sample": ONE},
      r"truth.sigma_int: expected a finite number >= 0"),
-    ({"truth": {"delta": 0.2}, "sample": [{"name": "s", "n": 5, "z_range": [0, 1], "method": "dynamical"}]},
+    ({"truth": {"delta": 0.2}, "sample": ONE},
      r"truth.delta: expected a table method -> offset"),
-    ({"truth": {"sigma_int": {"t": 0.3}}, "sample": [{"name": "s", "n": 5, "z_range": [0, 1],
-                                                      "method": "dynamical"}]},
+    ({"truth": {"sigma_int": {"t": 0.3}}, "sample": ONE},
      r"truth.sigma_int: no value for sample 's'"),
-    ({"truth": {"f_out": 1.5}, "sample": [{"name": "s", "n": 5, "z_range": [0, 1], "method": "dynamical"}]},
+    ({"truth": {"f_out": 1.5}, "sample": ONE},
      r"truth.f_out: expected a finite number >= 0 and <= 0.99"),
-    ({"mass_function": {"phi3": 1}, "sample": [{"name": "s", "n": 5, "z_range": [0, 1], "method": "dynamical"}]},
+    ({"mass_function": {"phi3": 1}, "sample": ONE},
      r"mass_function: unknown key\(s\) 'phi3'"),
-    ({"cosmology": "Planck99", "sample": [{"name": "s", "n": 5, "z_range": [0, 1], "method": "dynamical"}]},
+    ({"cosmology": "Planck99", "sample": ONE},
      r"cosmology: unknown realisation 'Planck99'"),
 ])
 def test_config_errors(cfg, message):

@@ -8,6 +8,7 @@ import numpy as np
 
 from ..campaign import prepare_campaign, run_campaign, stored_seed
 from ..campaign_config import read_campaign_config
+from ..errors import ConfigError
 from ..executors import make_executor
 from ..outputs import staged_directory, write_json
 
@@ -51,6 +52,8 @@ def progress_printer(quiet, every_s=2.0):
 
 
 def _clock(seconds):
+    if not seconds == seconds:  # NaN: rate not known yet
+        return "--:--:--"
     seconds = int(round(seconds))
     return f"{seconds // 3600:d}:{seconds % 3600 // 60:02d}:{seconds % 60:02d}"
 
@@ -65,8 +68,6 @@ def run(args):
         seed = int(np.random.SeedSequence().entropy % 2**32)
     spec = spec.with_seed(seed)
     if args.workers is not None and args.workers < 1:
-        from ..errors import ConfigError
-
         raise ConfigError(f"--workers: expected an integer >= 1, got {args.workers}")
     context = prepare_campaign(spec)
     executor = make_executor(workers=args.workers, scheduler=args.scheduler)

@@ -17,7 +17,8 @@ def register(subparsers):
         description="Draw hosts, redshifts and black-hole masses for every [[sample]] of a simulator "
                     "configuration, apply each sample's selection, and write one CSV catalogue per "
                     "sample and truth.json.")
-    parser.add_argument("--config", required=True, metavar="SIM.toml", help="simulator configuration (TOML)")
+    parser.add_argument("--config", required=True, metavar="SIM.toml",
+                        help="simulator configuration (TOML)")
     parser.add_argument("--out", required=True, metavar="DIR", help="output directory")
     parser.add_argument("--seed", type=int, default=None,
                         help="random seed (wins over the configuration's; default: the configuration's, "

@@ -1,7 +1,8 @@
 """The web report's parts for the consequences of a k: the dark-energy budget (budget.json) and the
 stellar-remnant test (remnants.json). Every key is optional."""
 
-from .htmlkit import (Cell, as_float, definition_list, dig, fmt, fmt_interval, fmt_p, join, table, tag)
+from .htmlkit import (Cell, as_float, definition_list, dig, fmt, fmt_p, fmt_sig, join, table,
+                      tag)
 
 MAX_OBJECT_ROWS = 60
 
@@ -10,7 +11,8 @@ def _summary_interval(block):
     """'median [p16, p84]' of a summarise_samples block, or None."""
     if not isinstance(block, dict):
         return None
-    return f"{fmt(block.get('median'))}  (68 %: {fmt_interval([block.get('p16'), block.get('p84')])})"
+    return (f"{fmt_sig(block.get('median'))}  (68 %: [{fmt_sig(block.get('p16'))}, "
+            f"{fmt_sig(block.get('p84'))}])")
 
 
 def budget_table(document, number):
@@ -27,12 +29,14 @@ def budget_table(document, number):
         if value is None:
             continue
         spread = _summary_interval(dig(document, summary_key)) if summary_key else None
-        rows.append([label, fmt(value, 4), Cell(spread or "–", "text"), unit])
+        rows.append([label, fmt_sig(value, 4), Cell(spread or "–", "text"), unit])
     if not rows:
         return tag("p", "budget.json holds none of the expected numbers.", cls="note")
     point = dig(document, "point_values_are")
-    return table(["quantity", "value", "over the posterior of k", "unit"], rows, number=number,
-                 numeric=[1], caption="Comoving density today of coupled stellar-remnant black holes "
+    headers = ["quantity", "value", "over the posterior of k", "unit"]
+    if all(row[2].content == "–" for row in rows):  # a single k: no spread to show
+        headers, rows = headers[:2] + headers[3:], [row[:2] + row[3:] for row in rows]
+    return table(headers, rows, number=number, numeric=[1], caption="Comoving density today of coupled stellar-remnant black holes "
                                       "against dark energy" + (f" (values are {point})." if point else "."))
 
 
@@ -73,8 +77,8 @@ def budget_warnings(document):
 
 def budget_glance(document):
     fraction = as_float(dig(document, "fraction_of_lambda"))
-    text = f"Ω_BH = {fmt(dig(document, 'omega_bh'), 3)} at k = {fmt(dig(document, 'k'), 2)}"
-    return text + (f", {fmt(100 * fraction, 2)} % of Ω_Λ" if fraction is not None else "")
+    text = f"Ω_BH = {fmt_sig(dig(document, 'omega_bh'))} at k = {fmt(dig(document, 'k'), 2)}"
+    return text + (f", {fmt_sig(100 * fraction)} % of Ω_Λ" if fraction is not None else "")
 
 
 def remnants_table(document, number):
@@ -103,6 +107,9 @@ def remnants_body(document, numbering, folder=None):
              ("limit from", fmt(dig(document, "limit_reference"))),
              ("joint probability all born above the limit", fmt_p(dig(document, "joint_probability"))),
              ("largest k with joint probability ≥ 0.95", fmt(dig(document, "k_max_95"), 2))]
+    averaged = dig(document, "posterior", "joint_probability_mean")
+    if averaged is not None:
+        facts.append(("joint probability averaged over the posterior of k", fmt_p(averaged)))
     return join([definition_list(facts), remnants_table(document, numbering.table),
                  _assumptions(document, "Assumptions of the remnant test")])
 

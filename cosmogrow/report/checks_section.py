@@ -6,8 +6,10 @@ a mapping of name to result), its verdict under "passed"/"pass"/"ok", its p-valu
 "p_value"/"p", and so on. Anything absent is simply not shown.
 """
 
-from .htmlkit import (Cell, as_float, definition_list, details, dig, flat_scalars, fmt, fmt_interval,
-                      fmt_p, join, table, tag)
+import re
+
+from .htmlkit import (Cell, as_float, definition_list, details, dig, esc, flat_scalars, fmt,
+                      fmt_interval, fmt_p, join, table, tag)
 
 _PASS_KEYS = ("passed", "pass", "ok", "passes")
 _P_KEYS = ("p_value", "p", "pvalue", "p_value_permutation")
@@ -24,13 +26,15 @@ def _first(row, keys):
 
 
 def null_test_rows(document):
-    """[(name, result dict)] of a nulltests.json, whatever its top-level layout."""
-    tests = dig(document, "tests", default=document if isinstance(document, dict) else None)
+    """[(name, result dict)] of a nulltests.json, whatever its top-level layout (skipped tests too)."""
+    tests = dig(document, "tests")
     if isinstance(tests, list):
         return [(str(_first(row, ("name", "test", "id")) or f"test {i + 1}"), row)
                 for i, row in enumerate(tests) if isinstance(row, dict)]
     if isinstance(tests, dict):
-        return [(str(name), row) for name, row in tests.items()
+        return [(str(name), row) for name, row in tests.items() if isinstance(row, dict)]
+    if tests is None and isinstance(document, dict):  # a bare mapping of name -> result
+        return [(str(name), row) for name, row in document.items()
                 if isinstance(row, dict) and (_first(row, _PASS_KEYS) is not None
                                               or _first(row, _P_KEYS) is not None)]
     return []
@@ -50,15 +54,22 @@ def test_passed(row):
     return None
 
 
-def _statistic_text(row):
+def _statistic_value(row):
+    """The test statistic's value as text (a dict statistic gives its value)."""
     statistic = dig(row, "statistic")
     if isinstance(statistic, dict):
-        name = _first(statistic, ("name", "kind"))
-        value = _first(statistic, ("value", "observed"))
-        return f"{name}: {fmt(value)}" if name is not None else fmt(value)
-    value = fmt(statistic) if statistic is not None else None
-    name = dig(row, "statistic_name")
-    return f"{name}: {value}" if name and value else (value or fmt(_first(row, ("k", "k_observed", "value"))))
+        return fmt(_first(statistic, ("value", "observed")))
+    value = _first(row, ("value", "k", "k_observed"))
+    if value is None and isinstance(statistic, (int, float)):
+        value = statistic
+    return fmt(value, 2)
+
+
+def _statistic_words(row):
+    statistic = dig(row, "statistic")
+    if isinstance(statistic, dict):
+        statistic = _first(statistic, ("name", "kind", "description"))
+    return statistic if isinstance(statistic, str) else None
 
 
 def _threshold_text(row):
@@ -72,26 +83,64 @@ def nulltests_table(document, number):
     rows = []
     for name, row in null_test_rows(document):
         passed = test_passed(row)
-        verdict = Cell("pass" if passed else ("FAIL" if passed is False else "–"),
+        verdict = Cell("pass" if passed else ("FAIL" if passed is False else
+                                              ("skipped" if dig(row, "skipped") else "–")),
                        "good" if passed else ("bad" if passed is False else None))
         interval = dig(row, "interval", default=dig(row, "interval95"))
-        rows.append([name, verdict, Cell(fmt(_first(row, _NULL_KEYS)), "text"), _statistic_text(row),
+        rows.append([dig(row, "title", default=name), verdict, _statistic_value(row),
                      fmt_p(_first(row, _P_KEYS)), fmt_interval(interval, 2) if interval else "–",
-                     _threshold_text(row), Cell(fmt(_first(row, _NOTE_KEYS)), "text")])
+                     Cell(_threshold_text(row), "text"), Cell(fmt(_first(row, _NOTE_KEYS)), "text")])
     if not rows:
         return tag("p", "nulltests.json holds no recognisable list of tests.", cls="note")
-    return table(["test", "result", "null hypothesis", "statistic", "p-value", "interval", "threshold",
-                  "what it says"], rows, number=number, numeric=[3, 4, 5, 6],
-                 caption="Null tests: each states its null hypothesis, statistic and threshold, "
-                         "and passes or fails.")
+    return table(["test", "result", "statistic", "p-value", "95 % range under the null", "threshold",
+                  "what it says"], rows, number=number, numeric=[2, 3, 4],
+                 caption="Null tests: each passes or fails at its stated threshold; their null "
+                         "hypotheses and statistics are listed below the table.")
+
+
+def nulltests_definitions(document):
+    items = []
+    for name, row in null_test_rows(document):
+        null = _first(row, _NULL_KEYS)
+        words = _statistic_words(row)
+        if not (null or words):
+            continue
+        text = tag("strong", dig(row, "title", default=name)) + " — "
+        if null:
+            text += tag("em", "Null hypothesis: ") + esc(fmt(null)) + " "
+        if words:
+            text += tag("em", "Statistic: ") + esc(words)
+        items.append(tag("li", text))
+    if not items:
+        return join([])
+    return tag("div", tag("h4", "What each test assumes") + tag("ul", join(items)), cls="assumptions")
+
+
+def nulltests_facts(document):
+    observed = dig(document, "observed")
+    pairs = []
+    if isinstance(observed, dict):
+        estimate = _first(observed, ("k", "median"))
+        spread = _first(observed, ("k_std", "std"))
+        pairs.append(("k of the data", f"{fmt(estimate)} ± {fmt(spread)}" if spread is not None else fmt(estimate)))
+    elif observed is not None:
+        pairs.append(("k of the data", fmt(observed)))
+    labels = (("mode", "estimator"), ("alpha", "level of each test"), ("repeats", "repeats per test"),
+              ("seed", "seed"), ("selection_modelled", "selection modelled"))
+    pairs += [(label, fmt(dig(document, key))) for key, label in labels if dig(document, key) is not None]
+    return definition_list(pairs) if pairs else join([])
 
 
 def nulltests_body(document, numbering, folder=None):
     parts = []
     plain = _first(document, ("summary", "plain_words", "interpretation", "verdict"))
     if isinstance(plain, str) and plain:
-        parts.append(tag("p", plain, cls="lede"))
+        plain = [plain]
+    if isinstance(plain, list):
+        parts += [tag("p", line, cls="lede") for line in plain if isinstance(line, str) and line]
+    parts.append(nulltests_facts(document))
     parts.append(nulltests_table(document, numbering.table))
+    parts.append(nulltests_definitions(document))
     text = (folder.texts.get("summary.md") if folder is not None else None)
     if text:
         parts.append(details("summary.md as written by the command", tag("pre", text, cls="text")))
@@ -103,33 +152,109 @@ def nulltests_warnings(document):
     for name, row in null_test_rows(document):
         if test_passed(row) is False:
             note = _first(row, _NOTE_KEYS)
-            out.append(f"null test '{name}' FAILED" + (f": {note}" if isinstance(note, str) and note else ""))
+            title = dig(row, "title", default=name)
+            note = re.sub(r"^(FAILS|FAILED|fails|failed)\s*:\s*", "", note) if isinstance(note, str) else ""
+            out.append(f"null test '{title}' FAILED" + (f": {note}" if note else ""))
     return out
 
 
 def nulltests_glance(document):
     rows = null_test_rows(document)
     verdicts = [test_passed(row) for _, row in rows]
-    failed = [name for (name, _), v in zip(rows, verdicts) if v is False]
-    text = f"{sum(v is True for v in verdicts)} of {len(rows)} null tests pass"
+    failed = [str(dig(row, "title", default=name)) for (name, row), v in zip(rows, verdicts) if v is False]
+    ran = sum(v is not None for v in verdicts)
+    text = f"{sum(v is True for v in verdicts)} of {ran} null tests pass"
+    if ran < len(rows):
+        text += f" ({len(rows) - ran} skipped)"
     return text + (f"; failed: {', '.join(failed)}" if failed else "")
 
 
 # --- challenge --------------------------------------------------------------------------------
 
+ESTIMATOR_NAMES = {"selection_aware": "selection-aware", "plain": "plain"}
+HYPOTHESIS_NAMES = {"claim": "claimed k", "null": "k = 0 hypothesis"}
+
+
 def claimed_k(document):
     return _first(document, ("claim", "claimed_k", "k_claim", "k_claimed"))
 
 
-def verdict_text(document):
-    verdict = _first(document, ("verdict", "conclusion", "summary"))
+def _verdicts(document):
+    """[(label, consistent or None, text)] of the challenge's verdicts, the claim first."""
+    verdict = _first(document, ("verdict", "conclusion"))
+    if isinstance(verdict, str):
+        return [("claim", dig(document, "consistent"), verdict)]
     if isinstance(verdict, dict):
-        verdict = _first(verdict, ("text", "message", "summary"))
-    return verdict if isinstance(verdict, str) else None
+        if isinstance(_first(verdict, ("text", "message")), str):
+            return [("claim", dig(verdict, "consistent"), _first(verdict, ("text", "message")))]
+        return [(label, dig(row, "consistent"), dig(row, "text")) for label, row in verdict.items()
+                if isinstance(dig(row, "text"), str)]
+    return []
+
+
+def verdict_text(document):
+    verdicts = _verdicts(document)
+    return verdicts[0][2] if verdicts else None
+
+
+def _observed_text(value):
+    if isinstance(value, dict):
+        estimate, spread = _first(value, ("k", "median")), _first(value, ("k_std", "std"))
+        return f"{fmt(estimate)} ± {fmt(spread)}" if spread is not None else fmt(estimate)
+    return fmt(value)
+
+
+def challenge_facts(document):
+    observed = dig(document, "observed")
+    pairs = [("claimed k", fmt(claimed_k(document), 2))]
+    if isinstance(observed, dict):
+        pairs += [(f"k of the data, {ESTIMATOR_NAMES.get(name, name)} fit", _observed_text(value))
+                  for name, value in observed.items()]
+    elif observed is not None:
+        pairs.append(("k of the data", fmt(observed)))
+    labels = (("replicas", "mocks per hypothesis"), ("mode", "estimator"), ("alpha", "level"),
+              ("selection_declared", "selection declared"), ("seed", "seed"))
+    pairs += [(label, fmt(dig(document, key))) for key, label in labels if dig(document, key) is not None]
+    return definition_list(pairs)
+
+
+def _hypothesis_name(label, k):
+    if label == "claim":
+        return f"claimed k = {fmt(k, 2)}"
+    if label == "null":
+        return f"no coupling, k = {fmt(k, 2)}"
+    return f"{label}: k = {fmt(k, 2)}"
+
+
+def distributions_table(document, number):
+    """One row per (hypothesis, estimator): where the data's estimate falls among the mocks."""
+    hypotheses = dig(document, "hypotheses")
+    if not isinstance(hypotheses, dict):
+        return None
+    alpha = as_float(dig(document, "alpha")) or 0.05
+    rows = []
+    for label, row in hypotheses.items():
+        for name, cell in (row.items() if isinstance(row, dict) else []):
+            if not isinstance(cell, dict) or "median" not in cell:
+                continue
+            p_value = as_float(dig(cell, "p_value"))
+            rows.append([_hypothesis_name(label, dig(row, "k")), ESTIMATOR_NAMES.get(name, name),
+                         fmt(dig(cell, "median")),
+                         fmt_interval(dig(cell, "interval95")), fmt(dig(cell, "bias"), signed=True),
+                         Cell(fmt_p(p_value), "bad" if p_value is not None and p_value < alpha else None),
+                         fmt_p(dig(cell, "p_value_empirical")), fmt(dig(cell, "n_failed"))])
+    if not rows:
+        return None
+    return table(["hypothesis", "fit", "median k of mocks", "95 % of mocks", "bias", "p (data)",
+                  "p (empirical)", "failed fits"], rows, number=number, numeric=range(2, 8),
+                 caption="The data's estimate among mocks of its own design simulated under each "
+                         "hypothesis and fitted like the data. The verdict uses the selection-aware rows; "
+                         "the plain rows show the bias of a fit that ignores the selection. p: two-sided "
+                         f"predictive p-value (red below {fmt(alpha, 2)}); empirical: Monte Carlo rank.")
 
 
 def _p_value_rows(document):
-    """(where, p-value) pairs: every scalar leaf whose path names a p-value."""
+    """(where, p-value) pairs: every scalar leaf whose path names a p-value (unknown layouts)."""
     rows = []
     for path, value in flat_scalars(document, limit=400, skip=("versions", "inputs", "config", "draws",
                                                                "samples", "estimates")):
@@ -141,43 +266,43 @@ def _p_value_rows(document):
 
 def challenge_body(document, numbering, folder=None):
     parts = []
-    verdict = verdict_text(document)
-    consistent = dig(document, "consistent", default=dig(document, "survives"))
-    if verdict:
+    for _, consistent, text in _verdicts(document):
         tone = "bad" if consistent is False else ("good" if consistent is True else "info")
-        parts.append(tag("p", verdict, cls=f"verdict verdict-{tone}"))
-    observed = _first(document, ("observed", "observed_k", "k_observed"))
-    facts = [("claimed k", fmt(claimed_k(document), 2))]
-    if isinstance(observed, dict):
-        facts += [(f"observed {key}", fmt(value)) for key, value in flat_scalars(observed, limit=8)]
-    elif observed is not None:
-        facts.append(("observed k", fmt(observed)))
-    facts += [(key.replace("_", " "), fmt(dig(document, key)))
-              for key in ("n_mocks", "realisations", "seed") if dig(document, key) is not None]
-    parts.append(definition_list(facts))
-    rows = [[Cell(path, "text"), Cell(fmt_p(value), "bad" if as_float(value) < 0.05 else None)]
-            for path, value in _p_value_rows(document)]
-    if rows:
-        parts.append(table(["where the observed estimate falls", "p-value"], rows, number=numbering.table,
-                           caption="Two-sided p-values of the observed k among mocks of the data's own "
-                                   "design simulated under the claimed k and under k = 0, fitted with "
-                                   "the plain and the selection-aware likelihood."))
-    distributions = dig(document, "distributions", default=dig(document, "mocks"))
-    if isinstance(distributions, (dict, list)):
-        values = [(Cell(path, "text"), fmt(value)) for path, value in
-                  flat_scalars(distributions, limit=60, skip=("draws", "samples", "estimates", "values"))]
-        if values:
-            parts.append(table(["mock distribution", "value"], values, number=numbering.table,
-                               caption="Summaries of the mock distributions of k."))
+        parts.append(tag("p", text, cls=f"verdict verdict-{tone}"))
+    summary = dig(document, "summary")
+    if isinstance(summary, list):
+        shown = {text for _, _, text in _verdicts(document)}
+        parts += [tag("p", line) for line in summary if isinstance(line, str) and line not in shown]
+    parts.append(challenge_facts(document))
+    distributions = distributions_table(document, numbering.table)
+    if distributions is not None:
+        parts.append(distributions)
+    else:
+        rows = [[Cell(path, "text"), Cell(fmt_p(value), "bad" if as_float(value) < 0.05 else None)]
+                for path, value in _p_value_rows(document)]
+        if rows:
+            parts.append(table(["where the observed estimate falls", "p-value"], rows,
+                               number=numbering.table,
+                               caption="p-values of the observed k among mocks simulated under the "
+                                       "claimed k and under k = 0."))
+    text = folder.texts.get("summary.md") if folder is not None else None
+    if text:
+        parts.append(details("summary.md as written by the command", tag("pre", text, cls="text")))
     return join(parts)
 
 
 def challenge_warnings(document):
     out = [str(w) for w in dig(document, "warnings", default=[]) or [] if w and isinstance(w, str)]
-    consistent = dig(document, "consistent", default=dig(document, "survives"))
-    if consistent is False:
-        out.append(f"challenge: a claimed k = {fmt(claimed_k(document), 2)} is not consistent with "
-                   "these data once their selection is modelled")
+    if dig(document, "selection_declared") is False:
+        out.append("challenge: no selection is declared for any sample, so the selection-aware fit is "
+                   "the plain fit and the verdict tests an unselected design")
+    hypotheses = dig(document, "hypotheses")
+    for label, row in (hypotheses.items() if isinstance(hypotheses, dict) else []):
+        for name, cell in (row.items() if isinstance(row, dict) else []):
+            failed = dig(cell, "n_failed")
+            if isinstance(failed, int) and failed > 0:
+                out.append(f"challenge: {failed} mock fits failed ({HYPOTHESIS_NAMES.get(label, label)}, "
+                           f"{ESTIMATOR_NAMES.get(name, name)} fit)")
     return out
 
 

@@ -248,10 +248,13 @@ def crosscheck_table(summary, number):
             rows += _crosscheck_rows(f"{sample} alone", tests)
     if not rows:
         return Markup("")
+    headers = ["compared with the reference", "two-sample test", "best k", "k range with p ≥ 0.05",
+               "p at best k", "note"]
+    if not any(row[-1].content for row in rows):
+        headers, rows = headers[:-1], [row[:-1] for row in rows]
     reference = dig(check, "reference")
     statistic = dig(check, "statistic")
-    return table(["compared with the reference", "two-sample test", "best k", "k range with p ≥ 0.05",
-                  "p at best k", "note"], rows, number=number, numeric=[2, 3, 4],
+    return table(headers, rows, number=number, numeric=[2, 3, 4],
                  caption=f"Assumption-light cross-check: the high-z statistic "
                          f"({statistic or 'log M_BH/M_*'}) shifted by +k log₁₀(1+z) and compared with "
                          f"the reference sample{f' {reference!s}' if reference else ''} by two-sample "
@@ -268,9 +271,10 @@ def sensitivity_table(summary, number):
                          "width that grows with the prior means the data cannot separate k from the offsets.")
 
 
-def fit_body(summary, numbering):
-    """All tables of one fit's section, in reading order."""
+def fit_body(summary, numbering, folder=None):
+    """All tables of one fit's section, in reading order (`folder` is unused: figures are added by
+    the page)."""
     parts = [data_table(summary, numbering.table), parameter_table(summary, numbering.table),
-             tests_table(summary, numbering.table), convergence_table(summary, numbering.table),
-             crosscheck_table(summary, numbering.table), sensitivity_table(summary, numbering.table)]
-    return join(parts)
+             tests_table(summary, numbering.table), crosscheck_table(summary, numbering.table)]
+    pair = [convergence_table(summary, numbering.table), sensitivity_table(summary, numbering.table)]
+    return join(parts) + tag("div", join(pair), cls="pair")

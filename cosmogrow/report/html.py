@@ -30,7 +30,7 @@ KIND_NAMES = {"fit": "fit", "campaign": "calibration campaign", "nulltests": "nu
               "challenge": "challenge", "budget": "budget", "remnants": "remnants"}
 # kind -> (body(document, numbering, folder), warnings(document), one-line glance(document) or None)
 SECTIONS = {
-    "fit": (lambda doc, numbering, folder: fit_section.fit_body(doc, numbering), fit_section.fit_warnings, None),
+    "fit": (fit_section.fit_body, fit_section.fit_warnings, None),
     "campaign": (calibration_section.campaign_body, calibration_section.campaign_warnings,
                  calibration_section.campaign_glance),
     "nulltests": (checks_section.nulltests_body, checks_section.nulltests_warnings,
@@ -54,7 +54,8 @@ FIGURES = {  # kind -> (file name, caption, full width)
                                   "binomial 3σ bands around the nominal level.", False),
                  ("sbc_ranks.png", "Simulation-based calibration: ranks of the true k among the posterior "
                                    "draws, flat for a calibrated posterior.", False)),
-    "nulltests": (("nulltests.png", "Null tests: each statistic against its threshold.", True),),
+    "nulltests": (("nulltests.png", "Null tests: the data's statistic against its distribution under "
+                                    "each null hypothesis.", True),),
     "challenge": (("challenge.png", "The observed k among mocks simulated under the claimed k and under "
                                     "k = 0, fitted plainly and with the selection modelled.", True),),
     "budget": (("budget.png", "Density of the coupled black-hole population against redshift, compared "
@@ -89,26 +90,34 @@ def build_report(result_dirs, out_path, *, title=None, generated_at=None):
     InputError
         A folder does not exist or holds no recognisable results.
     ConfigError
-        `out_path` is a folder.
+        `out_path` is a folder or cannot be written.
     """
     out_path = Path(out_path)
     if out_path.is_dir():
         raise ConfigError(f"{out_path}: is a folder; expected the path of the HTML file to write")
     folders = collect_folders(result_dirs)
     page = render_page(folders, title=title, generated_at=generated_at)
-    out_path.parent.mkdir(parents=True, exist_ok=True)
-    handle, tmp = tempfile.mkstemp(prefix=f".{out_path.name}.", suffix=".tmp", dir=out_path.parent)
+    try:
+        _write_atomically(out_path, page)
+    except OSError as exc:
+        raise ConfigError(f"{out_path}: cannot write the report ({exc.strerror or exc})") from None
+    return out_path
+
+
+def _write_atomically(path, text):
+    """Write a temporary file beside `path`, then rename it over `path` (never half-written)."""
+    path.parent.mkdir(parents=True, exist_ok=True)
+    handle, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
     try:
         with os.fdopen(handle, "w", encoding="utf-8") as stream:
-            stream.write(page)
+            stream.write(text)
             stream.flush()
             os.fsync(stream.fileno())
         os.chmod(tmp, 0o644)
-        os.replace(tmp, out_path)
+        os.replace(tmp, path)
     except BaseException:
         Path(tmp).unlink(missing_ok=True)
         raise
-    return out_path
 
 
 def _labels(folders):
@@ -135,7 +144,8 @@ def _entries(folders):
             warnings, error = _safely(SECTIONS[kind][1], document, fallback=[])
             if error:
                 warnings = [f"some warnings of this {KIND_NAMES[kind]} could not be read ({error})"]
-            warnings += [f"could not read {problem}" for problem in folder.problems]
+            if kind == folder.kinds[0]:
+                warnings += [f"could not read {problem}" for problem in folder.problems]
             entries.append({"folder": folder, "label": label, "kind": kind, "document": document,
                             "anchor": f"r{len(entries) + 1}", "warnings": warnings})
     return entries
@@ -188,7 +198,7 @@ def _headline(entries):
         function = SECTIONS[entry["kind"]][2]
         if function is None:
             continue
-        text, error = _safely(function, entry["document"], fallback="see its section")
+        text, _ = _safely(function, entry["document"], fallback="see its section")
         link = tag("a", f"{KIND_NAMES[entry['kind']]} · {entry['label']}", href=f"#{entry['anchor']}")
         glance.append(tag("li", tag("span", link, cls="what") + esc(text),
                           style=f"--accent: {KIND_COLOURS[entry['kind']]}"))
@@ -309,10 +319,11 @@ def _versions_text(document):
 
 
 def _inputs_rows(entry):
-    doc, kind = entry["document"], entry["kind"]
+    """(path, SHA-256, rows, rows dropped) of the input files a results file records."""
+    doc = entry["document"]
     rows = []
     inputs = dig(doc, "inputs")
-    if kind == "fit" and isinstance(inputs, list):
+    if isinstance(inputs, list):
         for item in inputs:
             dropped = dig(item, "dropped")
             rows.append([Cell(fmt(dig(item, "path")), "text mono"), Cell(fmt(dig(item, "sha256")), "text mono"),
@@ -341,8 +352,9 @@ def _provenance_section(entries, folders, stamp):
         if inputs:
             parts.append(table(["input file", "SHA-256", "rows", "rows dropped"], inputs, numeric=[2, 3]))
         figure_hashes = [f"{p.name}: {sha256_file(p)}" for p in folder.figures]
-        parts.append(tag("p", join([tag("span", line, cls="mono") for line in files + figure_hashes],
-                                   Markup("<br>"))))
+        parts.append(tag("p", tag("span", "Files read (SHA-256)", cls="label") + Markup("<br>")
+                         + join([tag("span", line, cls="mono") for line in files + figure_hashes],
+                                Markup("<br>"))))
         for key in ("config", "campaign", "inputs", "cosmology", "truth"):
             value = dig(doc, key)
             if value not in (None, {}, []):

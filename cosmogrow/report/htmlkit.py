@@ -90,12 +90,23 @@ def fmt(value, digits=3, *, signed=False):
             return "∞" if value == math.inf else (f"{MINUS}∞" if value == -math.inf else "–")
         return str(value)
     sign = "+" if signed else ""
-    if number != 0 and (abs(number) >= 1e4 or abs(number) < 10.0 ** (-digits)):
+    if number != 0 and (abs(number) >= 1e4 or abs(number) < min(1e-3, 10.0 ** (-digits))):
         mantissa, exponent = f"{number:{sign}.{max(digits - 1, 1)}e}".split("e")
         text = f"{mantissa}×10{str(int(exponent)).translate(_SUPERSCRIPT)}"
     else:
         text = f"{number:{sign}.{digits}f}"
     return text.replace("-", MINUS)
+
+
+def fmt_sig(value, figures=3):
+    """A number with `figures` significant figures (×10ⁿ outside 10⁻³ … 10⁴)."""
+    number = as_float(value)
+    if number is None or number == 0:
+        return fmt(value)
+    if abs(number) >= 1e4 or abs(number) < 1e-3:
+        return fmt(number, figures)
+    decimals = max(figures - 1 - math.floor(math.log10(abs(number))), 0)
+    return fmt(float(f"{number:.{figures}g}"), decimals)
 
 
 def fmt_interval(pair, digits=3):

@@ -47,7 +47,7 @@ section.result h2 { color: var(--accent, var(--teal)); }
   align-items: flex-start; }
 .card .card-main { flex: 0 1 auto; }
 .card dl.facts { flex: 1 1 300px; margin-top: 14px; }
-.pill a, a.pill { text-decoration: none; color: inherit; }
+a.pill { text-decoration: none; }
 .k-value { font: normal 42px/1.1 var(--serif); color: var(--teal); margin: 6px 0 8px; white-space: nowrap; }
 .k-value var { font-style: italic; }
 .pm { display: inline-flex; flex-direction: column; font-size: 17px; line-height: 1.2;
@@ -87,19 +87,24 @@ table.data caption { caption-side: top; text-align: left; color: var(--slate); f
 table.data th, table.data td { padding: 5px 10px; border-bottom: 1px solid #ebe5d8; text-align: left;
   vertical-align: top; }
 table.data thead th { border-bottom: 2px solid var(--ink); font-size: 12.5px; font-weight: 700;
-  color: var(--slate); white-space: nowrap; }
+  color: var(--slate); vertical-align: bottom; }
 table.data tbody th { font-weight: 600; }
 table.data tbody tr:nth-child(even) { background: var(--stripe); }
 table.data .num { text-align: right; white-space: nowrap; }
-table.data .text { white-space: normal; min-width: 12em; }
+table.data thead th.num { white-space: normal; }
+table.data .text { white-space: normal; min-width: 8em; }
+table.data tbody th { overflow-wrap: break-word; }
+.pair { display: grid; grid-template-columns: repeat(auto-fit, minmax(380px, 1fr)); gap: 0 28px; }
+.pair table.narrow { width: 100%; }
 table.data td.bad, table.data th.bad { color: var(--brick); font-weight: 700; background: var(--tint-brick); }
 table.data td.good { color: var(--olive); font-weight: 700; }
 var { font-family: var(--serif); font-size: 1.08em; }
 .figs { display: grid; grid-template-columns: repeat(auto-fit, minmax(440px, 1fr)); gap: 18px; margin: 16px 0 4px; }
 figure.fig { margin: 0; border: 1px solid var(--rule); border-radius: 4px; padding: 12px; background: #fff; }
 figure.wide { grid-column: 1 / -1; }
-figure.fig img { display: block; max-width: 100%; height: auto; margin: 0 auto; }
-figure.wide img { max-width: min(100%, 860px); }
+figure.fig img { display: block; width: auto; height: auto; max-width: 100%; max-height: 680px;
+  margin: 0 auto; }
+figure.wide img { max-width: min(100%, 900px); }
 figcaption { font-size: 13px; color: var(--slate); margin-top: 8px; }
 .file { font-family: var(--mono); font-size: 11.5px; color: #858a90; }
 .verdict { font: 18px/1.4 var(--serif); padding: 10px 16px; border-left: 5px solid var(--teal);
