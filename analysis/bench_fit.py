@@ -9,7 +9,6 @@ Run: .venv/bin/python analysis/bench_fit.py [--max-n 1000000]
 import argparse
 import json
 import math
-import resource
 import subprocess
 import sys
 import time

@@ -51,6 +51,7 @@ def main(argv=None):
     if not getattr(args, "run", None):
         parser.print_help()
         return EXIT_BAD_INPUT
+    args.invoke = main  # lets a command run other commands (the demo) without importing this module
     try:
         return int(args.run(args) or EXIT_OK)
     except CosmogrowError as exc:

@@ -10,7 +10,7 @@ import numpy as np
 from . import background
 from .catalog import Catalog
 from .catalog_io import read_catalog
-from .crosscheck import crosscheck_warnings, run_crosscheck
+from .crosscheck import crosscheck_options, crosscheck_warnings, run_crosscheck
 from .errors import ConfigError, InputError
 from .estimate import find_map, laplace, start_walkers
 from .hostprior import parent_host_priors
@@ -49,6 +49,7 @@ def load_data(config):
         raise ConfigError(f"{config.source}: no catalogues given (list them on the command line "
                           "or as [[sample]] tables)")
     cosmology = background.get_cosmology(config.cosmology)
+    crosscheck_options(config.raw.get("crosscheck", {}), config.source)  # fail before the MCMC
     catalogs, files, selections, seen = [], [], {}, {}
     for spec in config.samples:
         catalog, dropped = read_catalog(spec.path, sample=spec.name, column_map=spec.columns or None,
@@ -71,23 +72,27 @@ def load_data(config):
                    cosmology=cosmology)
 
 
-def build_model(config, data, *, selection_aware=True, catalog=None, host_rounds=2):
+def build_model(config, data, *, selection_aware=True, catalog=None, selection_source=None, host_rounds=2):
     """The posterior of a run; `catalog` replaces the data's rows (mocks of the same design).
 
+    `selection_source` (same rows as `catalog`) is the catalogue the selection is compiled on, for
+    null tests that move rows to other redshifts or samples but keep each row's selection; a
+    sample of `catalog` then counts as selected when any of its rows comes from a selected sample.
     With selection and calibrated host errors, the parent host distribution of every selected
     sample is estimated in `host_rounds` alternations with the MAP (hostprior module); the
     resulting priors are kept on the model as `host_priors`.
     """
     catalog = data.catalog if catalog is None else catalog
+    source = catalog if selection_source is None else selection_source
     selection = None
     if selection_aware and any(data.selections.values()):
-        selection = SelectionSet.compile(data.selections, catalog, data.cosmology)
+        selection = SelectionSet.compile(data.selections, source, data.cosmology)
     model = CoupledGrowthModel(build_design(catalog, config.model), config.model, config.priors, selection)
     model.host_priors = {}
     if model.selection is None or config.model.host_errors != "calibrated":
         return model
-    selected = [name for name, models in data.selections.items()
-                if any(m.on != "host" for m in models) and name in catalog.sample_names]
+    cut = [name for name, models in data.selections.items() if any(m.on != "host" for m in models)]
+    selected = list(dict.fromkeys(catalog.sample[np.isin(source.sample, cut)].tolist()))
     theta = None
     for _ in range(host_rounds):
         theta, _, _ = find_map(model, theta)
@@ -121,7 +126,8 @@ def run_fit(config, data, *, chain_path=None, on_check=None, selection_aware=Tru
 
 def summarise(config, data, model, approx, chain):
     """The summary.json content of a fit."""
-    warnings = degeneracy_warnings(model, data.catalog, approx)
+    sensitivity = offset_sensitivity(model, approx)
+    warnings = degeneracy_warnings(model, data.catalog, approx, sensitivity)
     if not chain.converged:
         warnings.insert(0, f"the chain did not converge: {chain.n_steps} steps is "
                            f"{chain.n_steps / chain.tau_max:.1f} autocorrelation times, "
@@ -146,7 +152,7 @@ def summarise(config, data, model, approx, chain):
         "parameters": describe_parameters(model.names, chain.samples),
         "map": {"theta": dict(zip(model.names, approx.theta)), "log_prob": approx.log_prob,
                 "laplace_std": dict(zip(model.names, approx.std))},
-        "degeneracy": {"offset_prior_sensitivity": offset_sensitivity(model, approx)},
+        "degeneracy": {"offset_prior_sensitivity": sensitivity},
         "selection": {"corrected": model.selection is not None,
                       "samples": {name: [m.to_dict() for m in models]
                                   for name, models in data.selections.items()},

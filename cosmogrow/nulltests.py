@@ -21,12 +21,9 @@ from scipy import stats
 from .errors import ConfigError
 from .estimate import find_map, laplace, start_walkers
 from .fit import FitData, build_model
-from .hostprior import parent_host_priors
-from .model import CoupledGrowthModel, build_design
 from .replicas import CAMPAIGN_MAX_STEPS, MODES, design_truth, fit_replica, laplace_is_sound
 from .sampler import default_walkers, run_ensemble
 from .seeding import child_seed, make_rng
-from .selection import SelectionSet
 
 #: Default significance level of every null test (a test fails when its p-value is below it).
 #: Six tests at 1 % each give a clean data set a ~6 % chance that one of them fails.
@@ -97,31 +94,9 @@ class Fitter:
         return {"k": float(out["k"]), "k_std": float(out["k_std"]), "converged": bool(out["converged"])}
 
 
-def _model_with_selection_of(config, data, catalog, source, selection_aware, host_rounds=2):
-    """`fit.build_model` for `catalog` with the selection compiled on `source` (same rows).
-
-    Mirrors build_model step by step (selection, model, and with calibrated host errors the
-    alternation of the MAP with the parent host priors of the selected samples); a sample of
-    `catalog` counts as selected when any of its rows comes from a sample with a black-hole-mass cut.
-    """
-    selection = None
-    if selection_aware and data.selections:
-        selection = SelectionSet.compile(data.selections, source, data.cosmology)
-    model = CoupledGrowthModel(build_design(catalog, config.model), config.model, config.priors,
-                               selection)
-    model.host_priors = {}
-    if model.selection is None or config.model.host_errors != "calibrated":
-        return model
-    cut = {name for name, models in data.selections.items() if any(m.on != "host" for m in models)}
-    selected = list(dict.fromkeys(catalog.sample[np.isin(source.sample, list(cut))].tolist()))
-    theta = None
-    for _ in range(host_rounds):
-        theta, _, _ = find_map(model, theta)
-        priors = parent_host_priors(model, catalog, theta, selected, config.model.log_mstar_pivot)
-        model = CoupledGrowthModel(build_design(catalog, config.model, priors), config.model,
-                                   config.priors, selection)
-        model.host_priors = priors
-    return model
+def _model_with_selection_of(config, data, catalog, source, selection_aware):
+    """`fit.build_model` for `catalog` with the selection compiled on `source` (same rows)."""
+    return build_model(config, data, selection_aware=selection_aware, catalog=catalog, selection_source=source)
 
 
 def fit_model(config, model, mode="fast", seed=None):

@@ -60,6 +60,8 @@ def design_truth(model, theta_map, k):
              "s_pivot": float(model.options.log_mstar_pivot), "z_ref": float(model.options.z_ref)}
     if "f_out" in values:
         truth.update(f_out=values["f_out"], sigma_out=values["sigma_out"])
+    if getattr(model, "host_priors", None):
+        truth["host_priors"] = {name: list(prior) for name, prior in model.host_priors.items()}
     return truth
 
 

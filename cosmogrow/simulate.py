@@ -187,7 +187,8 @@ def resample_hosts(catalog, truth, selections_by_sample, cosmo, seed=None, *, ho
     Every row keeps its id, z, log_mstar (as observed), errors, sample and method; only log_mbh
     changes. The true host mass behind each row is drawn from the distribution the fit's
     likelihood assumes for it given the observed one (`host_errors`, as the run configuration's
-    model.host_errors), so a resampled catalogue is an exact draw from the fitted model:
+    model.host_errors; a truth table's "host_priors" gives the parent host distribution of selected
+    samples), so a resampled catalogue is an exact draw from the fitted model:
     - "calibrated" (the fit's default): regression calibration, s ~ N(calibrated mean,
       calibrated error²) from `cosmogrow.model.calibrated_hosts`;
     - "first_order": s = log_mstar + N(0, log_mstar_err²) (a flat prior on the true host);
@@ -217,6 +218,7 @@ def resample_hosts(catalog, truth, selections_by_sample, cosmo, seed=None, *, ho
         An unknown `host_errors`, or rows that the selection essentially never accepts (e.g.
         failing a hard host-mass cut).
     """
+    host_priors = truth.get("host_priors") if isinstance(truth, dict) else None
     truth = parse_truth(truth)
     rng = make_rng(seed)
     selection = SelectionSet.compile(selections_by_sample or {}, catalog, cosmo)
@@ -226,7 +228,7 @@ def resample_hosts(catalog, truth, selections_by_sample, cosmo, seed=None, *, ho
         raise ConfigError(f"resample_hosts: {len(bad)} row(s) fail a host_mass_cut of their sample and "
                           f"can never be selected (e.g. id '{catalog.ids[bad[0]]}', sample "
                           f"'{catalog.sample[bad[0]]}', log_mstar {catalog.log_mstar[bad[0]]:.3f})")
-    host_mean, host_err = _latent_hosts(catalog, host_errors)
+    host_mean, host_err = _latent_hosts(catalog, host_errors, host_priors)
     sigma, delta = np.empty(n), np.empty(n)
     for name in catalog.sample_names:
         sigma[catalog.sample == name] = truth.scatter_of(name)
@@ -303,11 +305,16 @@ def _draw_truncated(truth, catalog, selection, rows, host_mean, host_err, sigma,
     return np.where(observed, y, y + delta[rows] + err * rng.standard_normal(len(rows)))
 
 
-def _latent_hosts(catalog, mode):
-    """Mean and spread (log10 Msun, dex) of each row's true host given the observed one."""
+def _latent_hosts(catalog, mode, host_priors=None):
+    """Mean and spread (log10 Msun, dex) of each row's true host given the observed one.
+
+    `host_priors` ({sample: (mean, variance)}, the parent hosts of selected samples as the fit
+    estimated them; a truth table's "host_priors") replaces the observed moments of those samples,
+    so the selection then acts on (true host, mass) as it does in the fit's likelihood.
+    """
     if mode not in HOST_ERROR_MODES:
         raise ConfigError(f"resample_hosts: host_errors: expected one of {', '.join(HOST_ERROR_MODES)}, "
                           f"got {mode!r}")
     if mode == "fixed":
         return np.asarray(catalog.log_mstar, dtype=float), np.zeros(len(catalog))
-    return calibrated_hosts(catalog, mode)
+    return calibrated_hosts(catalog, mode, host_priors)

@@ -33,7 +33,7 @@ SAMPLE_KEYS = ("name", "n", "z_range", "method", "log_mbh_err", "log_mstar_err",
                "log_mstar_max", "selection")
 SAMPLE_DEFAULTS = {"log_mstar_err": 0.15, "log_mstar_min": 10.0, "log_mstar_max": 12.5}
 #: Keys of a truth dictionary returned by the simulator that are not parameters.
-TRUTH_META_KEYS = ("seed", "cosmology", "mass_function", "samples", "cosmogrow_version")
+TRUTH_META_KEYS = ("seed", "cosmology", "mass_function", "samples", "cosmogrow_version", "host_priors")
 
 
 def _number(value, label, *, low=None, high=None, low_open=False):

@@ -8,6 +8,8 @@ from .estimate import profile_k
 OFFSET_WIDTHS = (0.05, 0.1, 0.2, 0.3, 0.5, 1.0)
 # |corr(k, delta)| above this in the Laplace covariance is reported as a degeneracy.
 DEGENERACY_CORRELATION = 0.9
+# sigma(k) growing more than this factor between offset priors of 0.05 and 1 dex is a degeneracy.
+WIDENING = 2.0
 
 
 def describe_samples(values):
@@ -91,24 +93,32 @@ def offset_sensitivity(model, laplace_result, widths=OFFSET_WIDTHS):
     return rows
 
 
-def degeneracy_warnings(model, catalog, laplace_result):
-    """Plain-language warnings where k is degenerate with a mass-method offset."""
+def degeneracy_warnings(model, catalog, laplace_result, sensitivity=None):
+    """Plain-language warnings where k is degenerate with a mass-method offset.
+
+    An offset counts as degenerate with k when their Laplace correlation exceeds
+    DEGENERACY_CORRELATION, or when sigma(k) grows more than WIDENING-fold as the offset prior
+    widens from the narrowest to the widest width of `offset_sensitivity`.
+    """
     warnings = []
     names = model.names
     cov = laplace_result.covariance
     std = np.sqrt(np.clip(np.diag(cov), 1e-300, None))
     zero_point = model.design.method_names[0]
     z_zero = catalog.z[catalog.method == zero_point]
+    rows = sensitivity if sensitivity is not None else offset_sensitivity(model, laplace_result)
+    widening = rows[-1]["k_std"] / rows[0]["k_std"] if rows else 1.0
     for index in model._i_delta:
         method = names[index][len("delta["):-1]
         corr = cov[0, index] / (std[0] * std[index])
         z_method = catalog.z[catalog.method == method]
-        disjoint = z_method.min() > z_zero.max() or z_method.max() < z_zero.min()
-        if disjoint or abs(corr) > DEGENERACY_CORRELATION:
+        if abs(corr) > DEGENERACY_CORRELATION or widening > WIDENING:
             warnings.append(
                 f"k is degenerate with the offset of method '{method}' against '{zero_point}' "
                 f"(correlation {corr:+.2f}; redshifts {z_method.min():.3g}-{z_method.max():.3g} vs "
-                f"{z_zero.min():.3g}-{z_zero.max():.3g}): the width of k is set by the offset prior "
+                f"{z_zero.min():.3g}-{z_zero.max():.3g}; sigma(k) grows {widening:.1f}-fold as the "
+                f"offset prior widens from {rows[0]['offset_prior_width']:g} to "
+                f"{rows[-1]['offset_prior_width']:g} dex): the width of k is set by the offset prior "
                 f"({model.delta_widths[list(model._i_delta).index(index)]:.2g} dex), not by the data.")
     if model.gamma != 0:
         warnings.append(f"host growth gamma = {model.gamma:g} is fixed: from masses alone only "

@@ -2,7 +2,6 @@
 
 import numpy as np
 import pytest
-from astropy.cosmology import FlatLambdaCDM, LambdaCDM
 
 from cosmogrow import background
 from cosmogrow.errors import ConfigError

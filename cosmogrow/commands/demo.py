@@ -51,8 +51,7 @@ def stages(data, out, only_fit=False):
 
 
 def run(args):
-    from ..cli import main as cli_main
-
+    cli_main = args.invoke
     data = Path(args.data) if args.data else default_data_dir()
     if not (data / "run.toml").is_file():
         raise ConfigError(f"{data}: no demo data here (expected run.toml); give --data DIR")

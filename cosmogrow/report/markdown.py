@@ -33,12 +33,15 @@ def fit_markdown(summary, title="cosmogrow fit"):
               f"| Savage–Dickey B(k=0 : free k) | {_fmt(tests['bayes_factor_k0'])} "
               f"({tests['bayes_factor_method']}) |"]
     crosscheck = summary.get("crosscheck")
-    if crosscheck:
+    if crosscheck and crosscheck.get("skipped"):
+        lines += ["", f"Distribution-matching cross-check skipped: {crosscheck['skipped']}"]
+    elif crosscheck:
         lines += ["", "Distribution-matching cross-check (best k; range with p ≥ 0.05):", ""]
         for name, row in crosscheck.get("tests", {}).items():
             rng = row.get("range")
             rng_text = f"[{rng[0]:.2f}, {rng[1]:.2f}]" if rng else "none"
-            lines.append(f"- {name}: best k = {_fmt(row.get('best_k'), 2)}, range {rng_text}")
+            note = f" (skipped: {row['skipped']})" if row.get("skipped") else ""
+            lines.append(f"- {name}: best k = {_fmt(row.get('best_k'), 2)}, range {rng_text}{note}")
     sens = summary.get("degeneracy", {}).get("offset_prior_sensitivity")
     if sens:
         lines += ["", "Width of k against the prior width of the mass-method offsets (Laplace):", "",
