@@ -9,7 +9,6 @@ calibrated posterior; binned ranks are compared with a uniform histogram by a ch
 import numpy as np
 from scipy import stats
 
-NOMINAL = {"68": 0.6827, "95": 0.9545}
 #: Coverage is judged against the central intervals the fits report: 16-84 % and 2.5-97.5 %.
 LEVELS = {"68": 0.68, "95": 0.95}
 EXCLUDED_VALUES = (0.0, 3.0)

@@ -16,7 +16,7 @@ that ignores the selection suffers (and the data's plain estimate is placed in t
 import numpy as np
 
 from .errors import ConfigError
-from .nulltests import Fitter, predictive_p, truth_at, two_sided_mc_p
+from .nullkit import Fitter, predictive_p, truth_at, two_sided_mc_p
 from .replicas import MODES, draw_replica
 from .seeding import child_seed
 
@@ -79,8 +79,8 @@ def challenge_claim(config, data, claim, *, replicas=DEFAULT_REPLICAS, mode="fas
 def _check(claim, replicas, mode, alpha):
     if not np.isfinite(claim):
         raise ConfigError(f"--claim: expected a finite number, got {claim!r}")
-    if not (isinstance(replicas, (int, np.integer)) and replicas >= 2):
-        raise ConfigError(f"--replicas: expected an integer >= 2, got {replicas!r}")
+    if not (isinstance(replicas, (int, np.integer)) and replicas >= 3):
+        raise ConfigError(f"--replicas: expected an integer >= 3, got {replicas!r}")
     if mode not in MODES:
         raise ConfigError(f"--mode: expected one of {', '.join(MODES)}, got {mode!r}")
     if not 0 < alpha < 0.5:

@@ -10,6 +10,8 @@ and the number of workers change nothing but the speed.
 import multiprocessing
 import os
 import pickle
+import threading
+import time
 from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
 
 from .errors import ConfigError
@@ -48,6 +50,15 @@ def _install_context(context_bytes):
     for name, value in SINGLE_THREAD_ENV.items():
         os.environ.setdefault(name, value)
     _WORKER_CONTEXT["context"] = pickle.loads(context_bytes)
+    threading.Thread(target=_exit_with_parent, args=(os.getppid(),), daemon=True).start()
+
+
+def _exit_with_parent(parent_pid, every_s=1.0):
+    """End this worker when the campaign process is gone (e.g. killed with SIGKILL): a pool's
+    workers otherwise wait for work forever."""
+    while os.getppid() == parent_pid:
+        time.sleep(every_s)
+    os._exit(1)
 
 
 def _call_with_worker_context(function, task):

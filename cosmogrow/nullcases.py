@@ -1,5 +1,5 @@
-"""The six null tests (DESIGN.md §8). Each takes a `nulltests.NullContext` and returns one result
-(`nulltests.make_result`): null hypothesis, statistic, value, p-value, threshold, pass/fail, note.
+"""The six null tests (DESIGN.md §8). Each takes a `nullkit.NullContext` and returns one result
+(`nullkit.make_result`): null hypothesis, statistic, value, p-value, threshold, pass/fail, note.
 
 Seeds: test t, repeat r uses ``child_seed(seed, t, r)`` for its random choices and
 ``child_seed(seed, t, r, 1)`` for its fit, so every number depends only on (seed, t, r).
@@ -11,7 +11,7 @@ import numpy as np
 from scipy import stats
 
 from .crosscheck import choose_reference
-from .nulltests import (INTERVAL_LEVEL, binomial_excess_p, bonferroni, make_result, monte_carlo_p,
+from .nullkit import (INTERVAL_LEVEL, binomial_excess_p, bonferroni, make_result, monte_carlo_p,
                         nested_pull, predictive_p, skipped_result, two_sided_p)
 from .replicas import draw_replica
 from .seeding import child_seed, make_rng

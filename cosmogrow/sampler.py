@@ -99,9 +99,14 @@ def _buffered_backend(path):
 
 
 def _moves():
+    """Differential evolution with some stretch moves.
+
+    Not emcee's DESnookerMove: mixed in at 20 % it left the marginal of k 7 % too narrow against
+    importance sampling of the same posterior (sd 0.187 vs 0.202; DE alone 0.202, stretch 0.203).
+    """
     import emcee
 
-    return [(emcee.moves.DEMove(), 0.8), (emcee.moves.DESnookerMove(), 0.2)]
+    return [(emcee.moves.DEMove(), 0.8), (emcee.moves.StretchMove(), 0.2)]
 
 
 def run_ensemble(log_prob, start, *, max_steps=20000, autocorr_factor=50.0, check_every=100,

@@ -76,6 +76,7 @@ def run_pool(path, out):
 
 
 def binomial_band(p, n, width=3.0):
+    # binomial standard error sqrt(p (1 - p) / n) of a coverage fraction (common practice)
     half = width * np.sqrt(p * (1 - p) / n)
     return p - half, p + half
 
@@ -159,6 +160,8 @@ def test_results_table_one_row_per_mock_and_estimator(cut_campaign):
 
 
 def test_sbc_ranks_uniform_for_a_correct_estimator(plain_campaign):
+    # SBC: ranks of the truth among posterior draws are uniform for a calibrated posterior
+    # (Talts et al. 2018, arXiv:1804.06788); p > 0.001 is the threshold.
     block = plain_campaign.summary["sbc"]["plain"]
     print("SBC", block)
     assert block["n"] == 200 and sum(block["counts"]) == 200

@@ -69,7 +69,7 @@ def test_a_true_claim_survives():
 
 
 @pytest.mark.parametrize("kwargs, message", [
-    ({"replicas": 1}, "--replicas: expected an integer >= 2"),
+    ({"replicas": 2}, "--replicas: expected an integer >= 3"),
     ({"mode": "exact"}, "--mode: expected one of fast, mcmc"),
     ({"alpha": 0.0}, "--alpha: expected 0 < alpha < 0.5"),
     ({"claim": float("nan")}, "--claim: expected a finite number"),
@@ -77,7 +77,7 @@ def test_a_true_claim_survives():
 ])
 def test_bad_settings_are_config_errors(kwargs, message):
     cat = mock_catalog(np.random.default_rng(4), 0.0, samples=((0.02, 20, "d"), (1.0, 20, "d")))
-    kwargs = {"claim": 3.0, "replicas": 2, **kwargs}
+    kwargs = {"claim": 3.0, "replicas": 3, **kwargs}
     claim = kwargs.pop("claim")
     with pytest.raises(ConfigError, match=message):
         challenge_claim(RunConfig(), data_of(cat), claim, **kwargs)
@@ -108,7 +108,7 @@ def test_cli_writes_results(tmp_path, capsys):
 
 @pytest.mark.parametrize("args, message", [
     (["--claim", "30"], "k = 30 is outside the prior range of k"),
-    (["--claim", "3", "--replicas", "1"], "--replicas: expected an integer >= 2"),
+    (["--claim", "3", "--replicas", "2"], "--replicas: expected an integer >= 3"),
 ])
 def test_cli_bad_input_exits_2_and_writes_nothing(tmp_path, capsys, args, message):
     config = write_run(tmp_path, mock_catalog(np.random.default_rng(5), 0.0,

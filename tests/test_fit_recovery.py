@@ -48,6 +48,8 @@ def test_interval_coverage(k_true, form):
         hits68 += lo68 <= k_true <= hi68
         hits95 += lo95 <= k_true <= hi95
         errors.append(approx.theta[0] - k_true)
+    print(f"{form} k={k_true}: coverage68 {hits68 / N_REAL:.3f}, coverage95 {hits95 / N_REAL:.3f}, "
+          f"mean MAP error {np.mean(errors):+.4f}")
     lo, hi = binomial_band(0.68, N_REAL)
     assert lo <= hits68 / N_REAL <= hi, f"68% coverage {hits68 / N_REAL:.3f}"
     lo, hi = binomial_band(0.95, N_REAL)
