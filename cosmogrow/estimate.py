@@ -68,14 +68,16 @@ def find_map(model, start=None, fixed=None):
     Parameters
     ----------
     model : CoupledGrowthModel
-    start : array, optional; default model.initial_guess()
+    start : array, optional; default model.map_start if set, else model.initial_guess()
     fixed : dict {index: value}, optional; parameters held fixed (for profiles)
 
     Returns
     -------
     theta : ndarray, log_prob : float, success : bool
     """
-    theta0 = np.array(model.initial_guess() if start is None else start, dtype=float)
+    if start is None:
+        start = model.map_start if model.map_start is not None else model.initial_guess()
+    theta0 = np.array(start, dtype=float)
     fixed = fixed or {}
     for index, value in fixed.items():
         theta0[index] = value

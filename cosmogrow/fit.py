@@ -100,6 +100,7 @@ def build_model(config, data, *, selection_aware=True, catalog=None, selection_s
         model = CoupledGrowthModel(build_design(catalog, config.model, priors), config.model,
                                    config.priors, selection)
         model.host_priors = priors
+        model.map_start = theta
     return model
 
 

@@ -150,6 +150,8 @@ class CoupledGrowthModel:
         self._ev_ratio = design.m_err**2 + design.s_err**2
         self._m_err2 = design.m_err**2
         self._s_err2 = design.s_err**2
+        # A known good starting point for the MAP (set by fit.build_model after its host rounds).
+        self.map_start = None
         plain = self.selection is None and not options.outliers
         self._moments = GaussianMoments(self) if plain else None
 

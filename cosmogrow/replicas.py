@@ -119,10 +119,6 @@ def draw_simulated(sim_config, truth, seed):
     -------
     catalog.Catalog
     """
-    # simulate_population seeds sample i by child_seed(seed, i), which keeps only the entropy
-    # of a SeedSequence: hand it one integer drawn from the whole sequence instead.
-    if isinstance(seed, np.random.SeedSequence):
-        seed = int(seed.generate_state(1, np.uint64)[0])
     return simulate.simulate_population({**sim_config, "truth": truth}, seed=seed).catalog
 
 

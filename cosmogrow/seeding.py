@@ -24,7 +24,9 @@ def spawn_seeds(seed, n):
 def child_seed(seed, *indices):
     """SeedSequence for job `indices` (e.g. grid point, realisation) of a campaign seeded by `seed`.
 
-    Uses `spawn_key`, so child (i, j) is the same whether or not the others are ever created.
+    Uses `spawn_key`, so child (i, j) is the same whether or not the others are ever created; a
+    SeedSequence parent keeps its own spawn key in front, so children of different parents differ.
     """
-    entropy = seed.entropy if isinstance(seed, np.random.SeedSequence) else seed
-    return np.random.SeedSequence(entropy, spawn_key=tuple(int(i) for i in indices))
+    if isinstance(seed, np.random.SeedSequence):
+        return np.random.SeedSequence(seed.entropy, spawn_key=tuple(seed.spawn_key) + tuple(int(i) for i in indices))
+    return np.random.SeedSequence(seed, spawn_key=tuple(int(i) for i in indices))

@@ -68,6 +68,20 @@ class RedshiftSampler:
         return self._inverse(rng.random(n))
 
 
+_REDSHIFT_SAMPLERS = {}
+
+
+def redshift_sampler(cosmo, z_lo, z_hi):
+    """A cached RedshiftSampler: building one integrates astropy's volume element on 4097 points,
+    most of the cost of a small mock (astropy cosmologies are immutable, so their repr is a key)."""
+    key = (repr(cosmo), float(z_lo), float(z_hi))
+    if key not in _REDSHIFT_SAMPLERS:
+        if len(_REDSHIFT_SAMPLERS) > 64:
+            _REDSHIFT_SAMPLERS.clear()
+        _REDSHIFT_SAMPLERS[key] = RedshiftSampler(cosmo, z_lo, z_hi)
+    return _REDSHIFT_SAMPLERS[key]
+
+
 def simulate_population(sim_config, seed=None):
     """Simulate every sample of a configuration.
 
@@ -122,7 +136,7 @@ def simulate_population(sim_config, seed=None):
 
 def _simulate_sample(spec, config, rng):
     hosts = HostMassSampler(config.mass_function, spec.log_mstar_min, spec.log_mstar_max)
-    redshifts = RedshiftSampler(config.cosmology, spec.z_lo, spec.z_hi)
+    redshifts = redshift_sampler(config.cosmology, spec.z_lo, spec.z_hi)
     parts, n_have, n_tried = [], 0, 0
     while n_have < spec.n:
         rate = (n_have + 1.0) / (n_tried + 2.0) if n_tried else 1.0

@@ -108,3 +108,14 @@ def test_bad_parametric_cosmologies():
         background.get_cosmology({"model": "Bogus", "H0": 70})
     with pytest.raises(ConfigError, match="'name' cannot be combined"):
         background.get_cosmology({"name": "Planck18", "H0": 70})
+
+
+def test_child_seeds_depend_on_parent_and_indices():
+    import numpy as np
+
+    from cosmogrow.seeding import child_seed
+
+    parent = np.random.SeedSequence(5).spawn(2)
+    draws = {(p, i): np.random.default_rng(child_seed(parent[p], i)).random() for p in (0, 1) for i in (0, 1)}
+    assert len(set(draws.values())) == 4
+    assert np.random.default_rng(child_seed(7, 3, 1)).random() == np.random.default_rng(child_seed(7, 3, 1)).random()
