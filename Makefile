@@ -28,7 +28,9 @@ test: install-test browser
 	$(BIN)/python -m pytest -q -ra
 
 bench: install
-	$(BIN)/python analysis/bench_likelihood.py
+	$(BIN)/python analysis/bench_fit.py
+	$(BIN)/python analysis/bench_selection.py
+	$(BIN)/python analysis/bench_campaign.py
 
 demo-data: install
 	$(BIN)/python analysis/make_demo_data.py

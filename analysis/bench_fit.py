@@ -35,7 +35,8 @@ def make_catalog(n, seed=0, k=2.0):
 
 
 def model_for(catalog):
-    options = ModelOptions(form="ratio")
+    # first-order host errors, so the reference loop below computes the very same likelihood
+    options = ModelOptions(form="ratio", host_errors="first_order")
     return CoupledGrowthModel(build_design(catalog, options), options)
 
 
