@@ -93,10 +93,10 @@ def build_model(config, data, *, selection_aware=True, catalog=None, selection_s
         return model
     cut = [name for name, models in data.selections.items() if any(m.on != "host" for m in models)]
     selected = list(dict.fromkeys(catalog.sample[np.isin(source.sample, cut)].tolist()))
-    theta = None
+    theta, priors = None, None
     for _ in range(host_rounds):
         theta, _, _ = find_map(model, theta)
-        priors = parent_host_priors(model, catalog, theta, selected, config.model.log_mstar_pivot)
+        priors = parent_host_priors(model, catalog, theta, selected, config.model.log_mstar_pivot, priors)
         model = CoupledGrowthModel(build_design(catalog, config.model, priors), config.model,
                                    config.priors, selection)
         model.host_priors = priors

@@ -42,7 +42,7 @@ def _selected_host_log_like(params, rows, parts, model, catalog, selection, cent
     return log_hosts + np.sum(log_cond) - np.sum(log_parent)
 
 
-def parent_host_priors(model, catalog, theta, samples, pivot):
+def parent_host_priors(model, catalog, theta, samples, pivot, start=None):
     """(mean, variance) of the parent true-host distribution of each named sample.
 
     Parameters
@@ -52,6 +52,7 @@ def parent_host_priors(model, catalog, theta, samples, pivot):
     theta : MAP of the model, fixing the relation
     samples : names of the selected samples
     pivot : log10 Msun, the model's host-mass pivot
+    start : {sample: (mean, variance)}, optional starting values (e.g. the previous round's)
     """
     parts = model.components(theta)
     priors = {}
@@ -59,11 +60,14 @@ def parent_host_priors(model, catalog, theta, samples, pivot):
         rows = np.flatnonzero(catalog.sample == name)
         if len(rows) < 5:
             continue
-        centre, spread = observed_host_moments(catalog.log_mstar[rows], catalog.log_mstar_err[rows] ** 2)
-        start = np.array([centre, 0.5 * np.log(spread)])
+        centre, spread = (start or {}).get(name) or observed_host_moments(
+            catalog.log_mstar[rows], catalog.log_mstar_err[rows] ** 2)
+        # a smooth 2-d problem: quasi-Newton with finite differences needs a third of the
+        # evaluations of a simplex search
         result = optimize.minimize(
             lambda p: -_selected_host_log_like(p, rows, parts, model, catalog, model.selection, pivot),
-            start, method="Nelder-Mead", options={"xatol": 1e-4, "fatol": 1e-6, "maxiter": 400})
-        if np.all(np.isfinite(result.x)) and -4 < result.x[1] < 1:
+            np.array([centre, 0.5 * np.log(spread)]), method="L-BFGS-B",
+            bounds=[(None, None), (-4.0, 1.0)], options={"ftol": 1e-10, "gtol": 1e-6})
+        if np.all(np.isfinite(result.x)) and -4 < result.x[1] < 1 and np.isfinite(result.fun):
             priors[name] = (float(result.x[0]), float(np.exp(2 * result.x[1])))
     return priors

@@ -31,6 +31,12 @@ def _threshold(alpha):
     return f"passes when p >= {alpha:g}"
 
 
+def _combined_pulls(rows, alpha):
+    """Bonferroni-combined p of per-subset pulls, whether it passes, and the worst subset."""
+    p = bonferroni([row["p"] for row in rows])
+    return p, p >= alpha, max(rows, key=lambda row: abs(row["pull"]))
+
+
 def _pass_words(passed):
     return "passes" if passed else "FAILS"
 
@@ -177,9 +183,7 @@ def leave_samples_out(ctx):
         pull = nested_pull(fit, ctx.observed)
         rows.append({"samples": list(subset), "left_out": [n for n in names if n not in subset],
                      "k": fit["k"], "k_std": fit["k_std"], "pull": float(pull), "p": two_sided_p(pull)})
-    p = bonferroni([row["p"] for row in rows])
-    passed = p >= ctx.alpha
-    worst = max(rows, key=lambda row: abs(row["pull"]))
+    p, passed, worst = _combined_pulls(rows, ctx.alpha)
     note = (f"{_pass_words(passed)}: across {len(rows)} subsets the largest shift is from leaving out "
             f"{', '.join(worst['left_out'])} (k = {worst['k']:.2f} ± {worst['k_std']:.2f} against "
             f"{ctx.observed['k']:.2f}, pull {worst['pull']:+.2f}; combined p = {p:.3g}). ")
@@ -297,9 +301,7 @@ def single_method(ctx):
         pull = nested_pull(fit, ctx.observed)
         rows.append({"method": method, "n": int(np.sum(cat.method == method)), "k": fit["k"],
                      "k_std": fit["k_std"], "pull": float(pull), "p": two_sided_p(pull)})
-    p = bonferroni([row["p"] for row in rows])
-    passed = p >= ctx.alpha
-    worst = max(rows, key=lambda row: abs(row["pull"]))
+    p, passed, worst = _combined_pulls(rows, ctx.alpha)
     note = (f"{_pass_words(passed)}: method '{worst['method']}' alone gives k = {worst['k']:.2f} ± "
             f"{worst['k_std']:.2f} against {ctx.observed['k']:.2f} (pull {worst['pull']:+.2f}; "
             f"combined p = {p:.3g}). ")
