@@ -18,28 +18,34 @@ from .model import observed_host_moments
 
 
 def _selected_host_log_like(params, rows, parts, model, catalog, selection, centred_pivot):
-    centre, log_tau = params
-    tau2 = np.exp(2 * log_tau)
+    """log p(s_obs | z, S) of a sample's hosts for each row of params = [[mean, log tau], ...]."""
+    params = np.atleast_2d(params)
+    centre, tau2 = params[:, :1], np.exp(2 * params[:, 1:2])
     s_obs = catalog.log_mstar[rows]
     err2 = catalog.log_mstar_err[rows] ** 2
     total_var = tau2 + err2
-    log_hosts = -0.5 * np.sum((s_obs - centre) ** 2 / total_var + np.log(2 * np.pi * total_var))
+    log_hosts = -0.5 * np.sum((s_obs - centre) ** 2 / total_var + np.log(2 * np.pi * total_var), axis=1)
     shrink = tau2 / total_var
     s_true = shrink * s_obs + (1 - shrink) * centre
-    beta, x = parts["beta"], model.design.x
-    n = len(x)
-    mu_cond = np.zeros(n)
-    var_cond = np.ones(n)
-    mu_cond[rows] = parts["alpha"] + beta * (s_true - centred_pivot) - parts["k_eff"] * x[rows]
-    var_cond[rows] = parts["sigma2"][rows] + beta**2 * shrink * err2
-    mu_parent = np.zeros(n)
-    var_parent = np.ones(n)
-    mu_parent[rows] = parts["alpha"] + beta * (centre - centred_pivot) - parts["k_eff"] * x[rows]
-    var_parent[rows] = parts["sigma2"][rows] + beta**2 * tau2
-    m_err = model.design.m_err
-    log_cond = selection.log_probability(mu_cond, parts["delta"], var_cond, m_err)[rows]
-    log_parent = selection.log_probability(mu_parent, parts["delta"], var_parent, m_err)[rows]
-    return log_hosts + np.sum(log_cond) - np.sum(log_parent)
+    beta, x, sigma2 = parts["beta"], model.design.x[rows], parts["sigma2"][rows]
+    n_params, n = len(params), len(model.design.x)
+    # conditional (given s_obs) and parent latent masses stacked, for one selection call
+    mu = np.zeros((2 * n_params, n))
+    var = np.ones((2 * n_params, n))
+    base = parts["alpha"] - parts["k_eff"] * x
+    mu[:n_params, rows] = base + beta * (s_true - centred_pivot)
+    var[:n_params, rows] = sigma2 + beta**2 * shrink * err2
+    mu[n_params:, rows] = base + beta * (centre - centred_pivot)
+    var[n_params:, rows] = sigma2 + beta**2 * tau2
+    log_sel = selection.log_probability(mu, parts["delta"], var, model.design.m_err)[:, rows].sum(axis=1)
+    return log_hosts + log_sel[:n_params] - log_sel[n_params:]
+
+
+def _value_and_gradient(params, *args, step=1e-5):
+    """Minus the log likelihood and its central-difference gradient, in one batched evaluation."""
+    points = np.array([params, params + (step, 0), params - (step, 0), params + (0, step), params - (0, step)])
+    values = -_selected_host_log_like(points, *args)
+    return values[0], np.array([values[1] - values[2], values[3] - values[4]]) / (2 * step)
 
 
 def parent_host_priors(model, catalog, theta, samples, pivot, start=None):
@@ -65,8 +71,8 @@ def parent_host_priors(model, catalog, theta, samples, pivot, start=None):
         # a smooth 2-d problem: quasi-Newton with finite differences needs a third of the
         # evaluations of a simplex search
         result = optimize.minimize(
-            lambda p: -_selected_host_log_like(p, rows, parts, model, catalog, model.selection, pivot),
-            np.array([centre, 0.5 * np.log(spread)]), method="L-BFGS-B",
+            _value_and_gradient, np.array([centre, 0.5 * np.log(spread)]), jac=True,
+            args=(rows, parts, model, catalog, model.selection, pivot), method="L-BFGS-B",
             bounds=[(None, None), (-4.0, 1.0)], options={"ftol": 1e-10, "gtol": 1e-6})
         if np.all(np.isfinite(result.x)) and -4 < result.x[1] < 1 and np.isfinite(result.fun):
             priors[name] = (float(result.x[0]), float(np.exp(2 * result.x[1])))
