@@ -152,8 +152,9 @@ class CoupledGrowthModel:
         self._s_err2 = design.s_err**2
         # A known good starting point for the MAP (set by fit.build_model after its host rounds).
         self.map_start = None
-        plain = self.selection is None and not options.outliers
-        self._moments = GaussianMoments(self) if plain else None
+        # Without outliers the Gaussian part always goes through weighted moments; a selection
+        # then adds only its correction (`_selection_chunk`).
+        self._moments = None if options.outliers else GaussianMoments(self)
 
     # ----- parameter layout -------------------------------------------------------------
     def _build_layout(self):
@@ -209,7 +210,12 @@ class CoupledGrowthModel:
         theta = np.atleast_2d(theta)
         n_obj = len(self.design.m_obs)
         rows = max(1, _CHUNK_ELEMENTS // max(n_obj, 1))
-        chunk = self._log_likelihood_chunk if self._moments is None else self._moments.log_likelihood
+        if self._moments is None:
+            chunk = self._log_likelihood_chunk
+        elif self.selection is None:
+            chunk = self._moments.log_likelihood
+        else:
+            chunk = self._selection_chunk
         return np.concatenate([chunk(theta[i:i + rows]) for i in range(0, len(theta), rows)])
 
     def log_prob(self, theta):
@@ -238,7 +244,9 @@ class CoupledGrowthModel:
         """Log likelihood of every object at one parameter vector, shape (N,)."""
         return self._log_likelihood_chunk(np.atleast_2d(theta), reduce=False)[0]
 
-    def _log_likelihood_chunk(self, theta, reduce=True):
+    def _latent(self, theta):
+        """Per object and walker: latent mean mu_true, offset delta, latent variance var_lat and the
+        total variance of m_obs (DESIGN.md §3-4)."""
         d = self.design
         k, alpha = theta[:, 0:1], theta[:, 1:2]
         beta = theta[:, 2:3] if self.relation else 1.0
@@ -256,6 +264,18 @@ class CoupledGrowthModel:
         else:
             var_lat = sig2_obj + self._s_err2
             var = sig2_obj + self._ev_ratio
+        return mu_true, delta, var_lat, var
+
+    def _selection_chunk(self, theta):
+        """Moments for the Gaussian part plus the selection correction (no outliers)."""
+        d = self.design
+        mu_true, delta, var_lat, _ = self._latent(theta)
+        correction = self.selection.log_correction(mu_true, delta, var_lat, d.m_obs, d.m_err)
+        return self._moments.log_likelihood(theta) + correction.sum(axis=1)
+
+    def _log_likelihood_chunk(self, theta, reduce=True):
+        d = self.design
+        mu_true, delta, var_lat, var = self._latent(theta)
         resid2 = (d.m_obs - mu_true - delta) ** 2
         log_like = -0.5 * (resid2 / var + np.log(var) + LOG_2PI)
         if self.options.outliers:

@@ -130,3 +130,19 @@ def test_calibration_removes_host_error_bias_between_samples():
     # truth k = 0; tolerance 3 standard errors of the mean over 60 realisations
     assert abs(calibrated.mean()) < 3 * calibrated.std(ddof=1) / np.sqrt(60)
     assert abs(first.mean()) > 5 * first.std(ddof=1) / np.sqrt(60)
+
+
+@pytest.mark.parametrize("form", ["ratio", "relation"])
+def test_selection_path_equals_elementwise(form):
+    from cosmogrow.background import get_cosmology
+    from cosmogrow.selection import SelectionSet
+
+    cat, _ = make_model(form)
+    opts = ModelOptions(form=form, scatter="per_sample", host_errors="first_order")
+    cuts = {"S1": [{"kind": "mass_cut", "log_mbh_min": 7.5, "width": 0.2}],
+            "S2": [{"kind": "flux_limit", "flux_limit": 1e-14}]}
+    selection = SelectionSet.compile(cuts, cat, get_cosmology())
+    model = CoupledGrowthModel(build_design(cat, opts), opts, selection=selection)
+    theta = model.initial_guess() + np.random.default_rng(1).normal(0, 0.05, (6, model.ndim))
+    elementwise = np.array([model.per_object_log_likelihood(t).sum() for t in theta])
+    np.testing.assert_allclose(model.log_likelihood(theta), elementwise, rtol=1e-10)

@@ -64,7 +64,8 @@ def run(args):
 
 
 def write_fit_outputs(folder, config, data, result):
-    """summary.json, summary.md, samples.npz and the three figures."""
+    """summary.json, summary.md, summary.tex, samples.npz and the figures
+    (corner, relation, offsets, crosscheck)."""
     from ..report.check_figures import crosscheck_figure
     from ..report.fit_figures import corner_figure, offsets_figure, relation_figure
     from ..report.latex import posterior_table
