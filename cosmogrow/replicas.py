@@ -3,7 +3,7 @@
 Shared by injection-recovery campaigns (`cosmogrow.campaign`) and the null tests / challenge of a
 claimed k. Three verbs:
 
-- `design_truth`: a truth table (HELPERS.md parameter names) from a fit's MAP, with k replaced;
+- `design_truth`: a truth table (the model's parameter names, DEVELOPERS.md) from a fit's MAP, with k replaced;
 - `draw_replica` / `draw_simulated`: one mock catalogue of the data's own design (resample-hosts
   mode, the data's selections and cosmology) or of a simulator configuration;
 - `fit_replica`: the fit of one mock, fast (MAP + Laplace) or by MCMC, reduced to the facts about k.

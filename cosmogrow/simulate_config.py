@@ -4,7 +4,7 @@ A simulator configuration (parsed TOML) has a top-level `seed`, optional `[cosmo
 run configuration) and `[mass_function]` (double Schechter; default Baldry et al. 2012), a
 `[truth]` table and `[[sample]]` tables. Every error is a ConfigError naming the key.
 
-[truth] (parameter names of HELPERS.md; defaults in brackets):
+[truth] (the model's parameter names; defaults in brackets):
   k [0], alpha [8.69: log10 M_BH at M* = 1e11 Msun from the Kormendy & Ho 2013 M-M_bulge relation,
   0.49e9 Msun, taking M_bulge = M*], beta [1, the "ratio" form], sigma_int [0.28 dex, the scatter
   of that relation; or a table sample -> dex], gamma [0], s_pivot [11.0], z_ref [0.0],
