@@ -314,3 +314,14 @@ def test_cli_bad_folder_exits_2_with_one_line_and_keeps_the_old_page(folders, tm
     assert len(err.strip().splitlines()) == 1 and message in err and "Traceback" not in err
     assert out.read_text() == "old page"
     assert sorted(p.name for p in tmp_path.iterdir()) == ["empty", "report.html"]
+
+
+def test_campaign_bias_flag_needs_size_and_significance():
+    from cosmogrow.report.calibration_section import bias_off
+
+    # 0.25 sigma_k but only 1.5 standard errors (40 mocks): noise, not a miscalibration
+    assert not bias_off({"bias_over_sigma": 0.25, "bias": 0.06, "bias_error": 0.04})
+    # 0.25 sigma_k at 6 standard errors: flagged
+    assert bias_off({"bias_over_sigma": 0.25, "bias": 0.06, "bias_error": 0.01})
+    # significant but small: not flagged
+    assert not bias_off({"bias_over_sigma": 0.1, "bias": 0.06, "bias_error": 0.01})
