@@ -138,16 +138,9 @@ def _safe_inverse(matrix):
 
 def profile_k(model, k_values, start):
     """Maximum log_prob with k held at each value; returns an array like k_values."""
-    out = []
-    theta = np.array(start, dtype=float)
-    for k in np.atleast_1d(k_values):
-        low, high = model.lower[model.index_k], model.upper[model.index_k]
-        if not low < k < high:
-            out.append(-np.inf)
-            continue
-        theta_k, value, _ = find_map(model, theta, fixed={model.index_k: float(k)})
-        out.append(value)
-    return np.array(out)
+    low, high = model.lower[model.index_k], model.upper[model.index_k]
+    return np.array([find_map(model, start, fixed={model.index_k: float(k)})[1] if low < k < high
+                     else -np.inf for k in np.atleast_1d(k_values)])
 
 
 def start_walkers(model, laplace_result, n_walkers, rng):

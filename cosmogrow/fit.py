@@ -9,13 +9,13 @@ import numpy as np
 
 from . import background
 from .catalog import Catalog
-from .catalog_io import read_catalog
+from .catalog_io import read_catalogs
 from .crosscheck import crosscheck_options, crosscheck_warnings, run_crosscheck
-from .errors import ConfigError, InputError
+from .errors import ConfigError
 from .estimate import find_map, laplace, start_walkers
 from .hostprior import parent_host_priors
 from .model import CoupledGrowthModel, build_design
-from .outputs import package_versions, sha256_file
+from .outputs import package_versions
 from .sampler import default_walkers, run_ensemble
 from .seeding import make_rng
 from .selection import SelectionSet, build_selection
@@ -50,26 +50,19 @@ def load_data(config):
                           "or as [[sample]] tables)")
     cosmology = background.get_cosmology(config.cosmology)
     crosscheck_options(config.raw.get("crosscheck", {}), config.source)  # fail before the MCMC
-    catalogs, files, selections, seen = [], [], {}, {}
-    for spec in config.samples:
-        catalog, dropped = read_catalog(spec.path, sample=spec.name, column_map=spec.columns or None,
-                                        drop_invalid=spec.drop_invalid, default_method=spec.method)
-        for row, obj_id in enumerate(catalog.ids, start=1):
-            if obj_id in seen:
-                raise InputError(spec.path, f"duplicate id, also in {seen[obj_id]}", row=row,
-                                 column="id", value=obj_id)
-        seen.update({obj_id: f"{spec.path}" for obj_id in catalog.ids})
-        names = catalog.sample_names
+    entries = [(spec.path, {"sample": spec.name, "column_map": spec.columns or None,
+                            "drop_invalid": spec.drop_invalid, "default_method": spec.method})
+               for spec in config.samples]
+    catalog, files = read_catalogs(entries)
+    selections = {}
+    for spec, info in zip(config.samples, files):
+        names = info["samples"]
         models = list(build_selection(list(spec.selection), where=f"sample '{names[0]}'"))
         for name in names:
             if name in selections and selections[name] != models:
                 raise ConfigError(f"sample '{name}' appears in two files with different selections")
             selections[name] = models
-        catalogs.append(catalog)
-        files.append({"path": str(spec.path), "sha256": sha256_file(spec.path), "rows": len(catalog),
-                      "samples": list(names), "dropped": dropped})
-    return FitData(catalog=Catalog.concat(catalogs), files=files, selections=selections,
-                   cosmology=cosmology)
+    return FitData(catalog=catalog, files=files, selections=selections, cosmology=cosmology)
 
 
 def build_model(config, data, *, selection_aware=True, catalog=None, selection_source=None, host_rounds=2):

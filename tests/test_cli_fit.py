@@ -124,3 +124,13 @@ def test_resume_continues_the_chain(catalogues, tmp_path):
     with h5py.File(out / "chain.h5") as f:
         assert f["mcmc"].attrs["iteration"] == summary["convergence"]["n_steps"] > 200
         assert np.all(np.isfinite(f["mcmc"]["chain"][:]))
+
+
+def test_duplicate_id_across_files_exits_2_naming_both(catalogues, tmp_path, capsys):
+    folder, local, _ = catalogues
+    copy = folder / "copy.csv"
+    copy.write_text(local.read_text())
+    assert main(["fit", str(local), str(copy), "--out", str(tmp_path / "dup"), "--quiet"]) == 2
+    err = capsys.readouterr().err.strip()
+    assert "copy.csv, row 1, column 'id'" in err and f"also in {local} row 1" in err
+    assert not (tmp_path / "dup").exists()
