@@ -22,10 +22,10 @@ import tempfile
 import time
 from pathlib import Path
 
-from cosmogrow.campaign import prepare_campaign, run_campaign
-from cosmogrow.campaign_config import read_campaign_config
-from cosmogrow.executors import ProcessExecutor, available_cores
-from cosmogrow.simulate import simulate_population
+from cosmogrow.campaigns.runner import prepare_campaign, run_campaign
+from cosmogrow.campaigns.config import read_campaign_config
+from cosmogrow.campaigns.executors import ProcessExecutor, available_cores
+from cosmogrow.simulation.population import simulate_population
 
 N_PER_SAMPLE = 250
 CUT = 8.3

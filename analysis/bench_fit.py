@@ -15,11 +15,11 @@ import time
 
 import numpy as np
 
-from cosmogrow.catalog import Catalog
+from cosmogrow.data.catalog import Catalog
 from cosmogrow.config import ModelOptions
-from cosmogrow.estimate import laplace, start_walkers
-from cosmogrow.model import CoupledGrowthModel, build_design
-from cosmogrow.sampler import run_ensemble
+from cosmogrow.inference.laplace import laplace, start_walkers
+from cosmogrow.model.likelihood import CoupledGrowthModel, build_design
+from cosmogrow.inference.mcmc import run_ensemble
 
 
 def make_catalog(n, seed=0, k=2.0):

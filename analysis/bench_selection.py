@@ -12,11 +12,11 @@ import time
 import numpy as np
 from astropy.cosmology import Planck18
 
-from cosmogrow.catalog import Catalog
+from cosmogrow.data.catalog import Catalog
 from cosmogrow.config import ModelOptions
-from cosmogrow.model import CoupledGrowthModel, build_design
-from cosmogrow.selection import SelectionSet
-from cosmogrow.simulate import simulate_population
+from cosmogrow.model.likelihood import CoupledGrowthModel, build_design
+from cosmogrow.selection.compiled import SelectionSet
+from cosmogrow.simulation.population import simulate_population
 
 SELECTIONS = {
     "observed mass cut (far)": {"far": {"kind": "mass_cut", "log_mbh_min": 8.0}},

@@ -9,10 +9,10 @@ import json
 import sys
 from pathlib import Path
 
-from cosmogrow.catalog_io import write_catalog
+from cosmogrow.data.readers import write_catalog
 from cosmogrow.config import load_toml
 from cosmogrow.outputs import to_jsonable
-from cosmogrow.simulate import simulate_population
+from cosmogrow.simulation.population import simulate_population
 
 ROOT = Path(__file__).resolve().parent.parent
 SCENARIO = ROOT / "analysis" / "demo_scenario.toml"

@@ -6,7 +6,7 @@ observed with Gaussian errors. Hosts s ~ N(11, 0.3^2).
 
 import numpy as np
 
-from cosmogrow.catalog import Catalog
+from cosmogrow.data.catalog import Catalog
 
 ALPHA = 8.5
 SIGMA = 0.3

@@ -1,6 +1,6 @@
 """Results folders for the report tests: fit, null tests, challenge, budget and remnants run through
 the command line on small inputs, and a campaign folder whose calibration blocks come from
-`cosmogrow.calibration` on synthetic estimates (a real campaign takes too long for this file).
+`cosmogrow.campaigns.coverage` on synthetic estimates (a real campaign takes too long for this file).
 
 Hostile text is planted on purpose: an object id, a sample name and a mass-method name (which ends
 up in a degeneracy warning) all carry a <script> tag; the report must show them escaped.
@@ -11,8 +11,8 @@ import shutil
 
 import numpy as np
 
-from cosmogrow.calibration import recovery_block, sbc_block
-from cosmogrow.cli import main
+from cosmogrow.campaigns.coverage import recovery_block, sbc_block
+from cosmogrow.cli.dispatch import main
 
 from mocks import mock_catalog
 

@@ -1,4 +1,7 @@
-"""The house rules of DEVELOPERS.md, checked by reading every module's imports and calls."""
+"""The house rules of DEVELOPERS.md, checked by reading every module's imports and calls.
+
+A folder (or top-level module) may import only from its own folder or from folders below it.
+"""
 
 import ast
 from pathlib import Path
@@ -8,18 +11,21 @@ import pytest
 PACKAGE = Path(__file__).resolve().parent.parent / "cosmogrow"
 
 LAYERS = {
-    0: {"__init__", "errors", "seeding", "outputs", "catalog", "tables", "probit", "journal", "calibration"},
-    1: {"background", "config", "catalog_io", "massfunction", "imf", "sfr"},
-    2: {"selection", "selection_physics", "budget", "remnants"},
-    3: {"model", "simulate_config"},
-    4: {"estimate", "sampler", "summary", "hostprior", "crosscheck", "simulate"},
-    5: {"fit"},
-    6: {"replicas", "executors"},
-    7: {"campaign", "campaign_config", "nullkit", "nulltests", "nullcases", "challenge"},
-    8: {"report"},
-    9: {"commands"},
-    10: {"cli"},
+    0: {"__init__", "errors", "seeding", "interpolation", "outputs"},
+    1: {"background", "config"},
+    2: {"data"},
+    3: {"selection", "consequences"},
+    4: {"model"},
+    5: {"simulation"},
+    6: {"inference"},
+    7: {"campaigns"},
+    8: {"checks"},
+    9: {"forecast"},
+    10: {"report"},
+    11: {"cli"},
 }
+# At most a dozen modules directly in cosmogrow/; everything else lives in a folder by concern.
+MAX_TOP_LEVEL_MODULES = 12
 LAYER_OF = {name: layer for layer, names in LAYERS.items() for name in names}
 
 
@@ -28,7 +34,7 @@ def modules():
 
 
 def unit(path):
-    """'report' for report/*.py, 'commands' for commands/*.py, else the module's name."""
+    """The folder of a module in a folder (e.g. 'inference'), else the top-level module's name."""
     rel = path.relative_to(PACKAGE)
     return rel.parts[0] if len(rel.parts) > 1 else rel.stem
 
@@ -68,11 +74,31 @@ def test_imports_point_down(path):
     assert not upward, f"{path.name} (layer {mine}) imports upward: {upward}"
 
 
+def dotted(path):
+    return ".".join(path.relative_to(PACKAGE).with_suffix("").parts)
+
+
+def module_imports(path):
+    """Dotted names of the package's modules (or packages) this module imports."""
+    tree = ast.parse(path.read_text())
+    here = path.relative_to(PACKAGE).parts[:-1]
+    found = set()
+    for node in ast.walk(tree):
+        if isinstance(node, ast.ImportFrom) and node.level:
+            base = list(here[: len(here) - (node.level - 1)])
+            target = base + (node.module.split(".") if node.module else [])
+            for alias in node.names:
+                candidate = target + [alias.name]
+                if (PACKAGE.joinpath(*candidate).with_suffix(".py").exists()
+                        or PACKAGE.joinpath(*candidate).is_dir()):
+                    found.add(".".join(candidate))
+                elif target:
+                    found.add(".".join(target))
+    return found
+
+
 def test_no_import_cycles_between_modules():
-    graph = {}
-    for path in modules():
-        if len(path.relative_to(PACKAGE).parts) == 1:
-            graph[path.stem] = {n for n in internal_imports(path)[0] if n in LAYER_OF and n != path.stem}
+    graph = {dotted(p).removesuffix(".__init__"): module_imports(p) for p in modules()}
 
     def visit(node, stack):
         for nxt in graph.get(node, ()):
@@ -83,8 +109,20 @@ def test_no_import_cycles_between_modules():
         visit(start, [start])
 
 
+def test_top_level_stays_small():
+    top = sorted(p.stem for p in PACKAGE.glob("*.py"))
+    assert len(top) <= MAX_TOP_LEVEL_MODULES, f"move some of these into folders: {top}"
+
+
+def test_every_folder_says_what_lives_there():
+    for folder in (p for p in PACKAGE.iterdir() if p.is_dir() and p.name != "__pycache__"):
+        init = folder / "__init__.py"
+        assert init.exists(), f"{folder.name}/ has no __init__.py"
+        assert ast.get_docstring(ast.parse(init.read_text())), f"{folder.name}/__init__.py: no docstring"
+
+
 @pytest.mark.parametrize("library,allowed", [("matplotlib", {"report"}), ("corner", {"report"}),
-                                             ("emcee", {"sampler"}), ("distributed", {"executors"})])
+                                             ("emcee", {"inference"}), ("distributed", {"campaigns"})])
 def test_heavy_libraries_stay_in_their_module(library, allowed):
     offenders = [str(p.relative_to(PACKAGE)) for p in modules()
                  if library in internal_imports(p)[1] and unit(p) not in allowed]

@@ -8,7 +8,8 @@ from astropy import units as u
 from astropy.cosmology import FlatLambdaCDM, Planck18
 from scipy import integrate, optimize
 
-from cosmogrow import budget, cli, imf, sfr
+from cosmogrow.cli import dispatch as cli
+from cosmogrow.consequences import budget, imf, sfr
 from cosmogrow.errors import ConfigError, InputError
 
 # Madau & Dickinson 2014 fit their model in a flat cosmology with h = 0.7, Omega_m = 0.3 [paper].

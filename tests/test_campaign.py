@@ -19,14 +19,14 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from cosmogrow import calibration
-from cosmogrow.campaign import JOURNAL, prepare_campaign, run_campaign
-from cosmogrow.campaign_config import parse_campaign_config, read_campaign_config
-from cosmogrow.cli import main
+from cosmogrow.campaigns import coverage as calibration
+from cosmogrow.campaigns.runner import JOURNAL, prepare_campaign, run_campaign
+from cosmogrow.campaigns.config import parse_campaign_config, read_campaign_config
+from cosmogrow.cli.dispatch import main
 from cosmogrow.errors import ConfigError
-from cosmogrow.executors import DaskExecutor, ProcessExecutor, SerialExecutor
-from cosmogrow.journal import Journal, read_records
-from cosmogrow.replicas import draw_replica, fit_replica
+from cosmogrow.campaigns.executors import DaskExecutor, ProcessExecutor, SerialExecutor
+from cosmogrow.campaigns.journal import Journal, read_records
+from cosmogrow.campaigns.mocks import draw_replica, fit_replica
 
 from mocks import mock_catalog, write_csv
 
@@ -193,7 +193,7 @@ def test_sbc_detects_a_biased_estimator():
 ])
 def test_fast_intervals_agree_with_mcmc(design, max_shift, max_width_change, request):
     from cosmogrow.config import read_run_config
-    from cosmogrow.fit import load_data
+    from cosmogrow.inference.fit import load_data
 
     config = read_run_config(request.getfixturevalue(design))
     data = load_data(config)
@@ -247,7 +247,7 @@ def test_dask_local_cluster_gives_identical_rows(small_campaign, tmp_path):
 def test_killed_campaign_resumes_to_identical_results(small_campaign, tmp_path):
     path, reference = small_campaign
     out = tmp_path / "killed"
-    command = [sys.executable, "-m", "cosmogrow.cli", "inject", "--config", str(path), "--out",
+    command = [sys.executable, "-m", "cosmogrow.cli.dispatch", "inject", "--config", str(path), "--out",
                str(out), "--workers", "1", "--quiet"]
     env = {**os.environ, "PYTHONPATH": str(REPO)}
     # a session of its own, so that kill -9 reaches the campaign and its worker process at once
@@ -328,8 +328,8 @@ def test_simulation_design_campaign(tmp_path):
 # ----- truth tables ---------------------------------------------------------------------------
 def test_design_truth_names_every_parameter():
     from cosmogrow.config import ModelOptions
-    from cosmogrow.model import CoupledGrowthModel, build_design
-    from cosmogrow.replicas import apply_overrides, design_truth
+    from cosmogrow.model.likelihood import CoupledGrowthModel, build_design
+    from cosmogrow.campaigns.mocks import apply_overrides, design_truth
 
     catalog = mock_catalog(np.random.default_rng(1), 1.0,
                            samples=((0.02, 20, "dynamical"), (1.0, 20, "virial")))

@@ -10,8 +10,8 @@ import numpy as np
 import pytest
 from astropy.table import MaskedColumn, QTable, Table
 
-from cosmogrow.catalog import Catalog
-from cosmogrow.catalog_io import read_catalog, read_catalogs, write_catalog
+from cosmogrow.data.catalog import Catalog
+from cosmogrow.data.readers import read_catalog, read_catalogs, write_catalog
 from cosmogrow.errors import ConfigError, InputError
 
 DATA = Path(__file__).parent / "data"
@@ -59,7 +59,7 @@ def test_csv_values_and_defaults(tmp_path):
     np.testing.assert_array_equal(catalog.log_mstar_err, [0.1, 0.15, 0.2])
     assert catalog.sample_names == ("local",)  # file stem
     assert catalog.method_names == ("unspecified",)
-    assert catalog.sources == (str(path),)
+    assert catalog.files == (str(path),)
 
 
 def test_sample_and_method_arguments_and_columns(tmp_path):
@@ -299,7 +299,7 @@ def test_column_map_unknown_target(tmp_path):
     path = write_csv(tmp_path, GOOD_ROWS)
     with pytest.raises(ConfigError, match=r"^column_map: unknown target column\(s\) 'redshift'; expected one of "
                                           r"id, z, log_mbh, log_mbh_err, log_mstar, log_mstar_err, sample, "
-                                          r"method, mbh, mbh_err, mstar, mstar_err$"):
+                                          r"method, host_type, source, mbh, mbh_err, mstar, mstar_err$"):
         read_catalog(path, column_map={"z": "redshift"})
 
 
@@ -397,7 +397,7 @@ def test_read_catalogs_concatenates_and_describes_inputs(tmp_path):
     catalog, inputs = read_catalogs([first, (second, {"drop_invalid": True, "default_method": "virial"})])
     assert catalog.ids.tolist() == ["a", "b", "c", "x"]
     assert catalog.sample_names == ("local", "deep") and catalog.method_names == ("unspecified", "virial")
-    assert catalog.sources == (str(first), str(second))
+    assert catalog.files == (str(first), str(second))
     assert inputs[0] == {"path": str(first), "sha256": hashlib.sha256(first.read_bytes()).hexdigest(),
                          "rows": 3, "samples": ["local"], "dropped": []}
     assert inputs[1]["rows"] == 1 and inputs[1]["samples"] == ["deep"]
@@ -448,3 +448,27 @@ def test_van_den_bosch_subset():
     # log M* = LK + log10(0.8), LK = 11.314762 (mass-to-light ratio 0.8 Msun/Lsun in K, common practice)
     assert catalog.log_mstar[index] == pytest.approx(11.314762 + math.log10(0.8), abs=1e-4)
     assert catalog.ids[0] == "A1836BCG" and catalog.log_mbh[0] == 9.573
+
+
+def test_host_type_and_source_columns_are_read_and_written_back(tmp_path):
+    path = tmp_path / "mixed.csv"
+    path.write_text("id,z,log_mbh,log_mbh_err,log_mstar,log_mstar_err,host_type,source\n"
+                    "a,0.01,8.5,0.1,11.0,0.1,quiescent,survey_one\n"
+                    "b,0.02,7.5,0.1,10.8,0.1,agn,\n")
+    catalog, _ = read_catalog(path)
+    assert list(catalog.host_type) == ["quiescent", "agn"]
+    assert list(catalog.source) == ["survey_one", "unspecified"]
+    assert catalog.host_type_names == ("quiescent", "agn")
+    write_catalog(catalog, tmp_path / "again.csv")
+    again, _ = read_catalog(tmp_path / "again.csv")
+    assert list(again.host_type) == ["quiescent", "agn"] and list(again.source) == list(catalog.source)
+
+
+def test_optional_labels_not_written_when_absent(tmp_path):
+    path = tmp_path / "plain.csv"
+    path.write_text("id,z,log_mbh,log_mbh_err,log_mstar,log_mstar_err\na,0.01,8.5,0.1,11.0,0.1\n")
+    catalog, _ = read_catalog(path)
+    assert list(catalog.host_type) == ["unspecified"] and list(catalog.source) == ["unspecified"]
+    write_catalog(catalog, tmp_path / "out.csv")
+    header = (tmp_path / "out.csv").read_text().splitlines()[0]
+    assert "host_type" not in header and "source" not in header

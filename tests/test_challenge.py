@@ -11,12 +11,12 @@ import numpy as np
 import pytest
 
 from cosmogrow import background
-from cosmogrow.challenge import challenge_claim
-from cosmogrow.cli import main
+from cosmogrow.checks.challenge import challenge_claim
+from cosmogrow.cli.dispatch import main
 from cosmogrow.config import RunConfig
 from cosmogrow.errors import ConfigError
-from cosmogrow.fit import FitData
-from cosmogrow.selection import build_selection
+from cosmogrow.inference.fit import FitData
+from cosmogrow.selection.compiled import build_selection
 
 from mocks import mock_catalog, write_csv
 

@@ -5,7 +5,7 @@ import json
 import numpy as np
 import pytest
 
-from cosmogrow.cli import main
+from cosmogrow.cli.dispatch import main
 
 from mocks import mock_catalog, write_csv
 

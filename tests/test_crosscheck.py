@@ -11,15 +11,15 @@ import numpy as np
 import pytest
 from scipy import stats
 
-from cosmogrow.catalog import Catalog
-from cosmogrow.cli import main
+from cosmogrow.data.catalog import Catalog
+from cosmogrow.cli.dispatch import main
 from cosmogrow.config import RunConfig, parse_run_config
-from cosmogrow.crosscheck import (CrosscheckOptions, crosscheck_options, crosscheck_warnings,
+from cosmogrow.inference.crosscheck import (CrosscheckOptions, crosscheck_options, crosscheck_warnings,
                                   distribution_crosscheck, run_crosscheck)
 from cosmogrow.errors import ConfigError
-from cosmogrow.fit import FitData
-from cosmogrow.model import lever_arm
-from cosmogrow.nulltests import Fitter
+from cosmogrow.inference.fit import FitData
+from cosmogrow.model.likelihood import lever_arm
+from cosmogrow.checks.null_suite import Fitter
 
 from mocks import mock_catalog, write_csv
 

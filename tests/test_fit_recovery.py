@@ -9,9 +9,9 @@ import numpy as np
 import pytest
 
 from cosmogrow.config import ModelOptions
-from cosmogrow.estimate import laplace, start_walkers
-from cosmogrow.model import CoupledGrowthModel, build_design
-from cosmogrow.sampler import run_ensemble
+from cosmogrow.inference.laplace import laplace, start_walkers
+from cosmogrow.model.likelihood import CoupledGrowthModel, build_design
+from cosmogrow.inference.mcmc import run_ensemble
 
 from mocks import mock_catalog
 

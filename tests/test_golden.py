@@ -69,7 +69,7 @@ def _numbers(summary):
 
 
 def _run(argv):
-    from cosmogrow.cli import main
+    from cosmogrow.cli.dispatch import main
     code = main(argv)
     assert code in (0, 3), f"{argv[0]} exited {code}"
 

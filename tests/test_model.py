@@ -5,7 +5,7 @@ import pytest
 from scipy import stats
 
 from cosmogrow.config import ModelOptions
-from cosmogrow.model import CoupledGrowthModel, build_design, calibrated_hosts, lever_arm
+from cosmogrow.model.likelihood import CoupledGrowthModel, build_design, calibrated_hosts, lever_arm
 
 from mocks import mock_catalog
 
@@ -109,8 +109,8 @@ def test_calibration_removes_host_error_bias_between_samples():
     The local sample's hosts sit 0.4 dex lower than the distant sample's; with beta = 1 in the
     ratio form the attenuation of the observed slope differs, which first order cannot absorb.
     """
-    from cosmogrow.catalog import Catalog
-    from cosmogrow.estimate import laplace
+    from cosmogrow.data.catalog import Catalog
+    from cosmogrow.inference.laplace import laplace
 
     estimates = {"calibrated": [], "first_order": []}
     for r in range(60):
@@ -135,7 +135,7 @@ def test_calibration_removes_host_error_bias_between_samples():
 @pytest.mark.parametrize("form", ["ratio", "relation"])
 def test_selection_path_equals_elementwise(form):
     from cosmogrow.background import get_cosmology
-    from cosmogrow.selection import SelectionSet
+    from cosmogrow.selection.compiled import SelectionSet
 
     cat, _ = make_model(form)
     opts = ModelOptions(form=form, scatter="per_sample", host_errors="first_order")

@@ -13,15 +13,16 @@ import json
 import numpy as np
 import pytest
 
-from cosmogrow import background, nullcases
-from cosmogrow.catalog import Catalog
-from cosmogrow.cli import main
+from cosmogrow import background
+from cosmogrow.checks import null_tests as nullcases
+from cosmogrow.data.catalog import Catalog
+from cosmogrow.cli.dispatch import main
 from cosmogrow.config import ModelOptions, RunConfig
 from cosmogrow.errors import ConfigError
-from cosmogrow.fit import FitData
-from cosmogrow.selection import build_selection
-from cosmogrow.model import lever_arm
-from cosmogrow.nulltests import (bonferroni, make_context, monte_carlo_p, nested_pull, predictive_p,
+from cosmogrow.inference.fit import FitData
+from cosmogrow.selection.compiled import build_selection
+from cosmogrow.model.likelihood import lever_arm
+from cosmogrow.checks.null_suite import (bonferroni, make_context, monte_carlo_p, nested_pull, predictive_p,
                                  run_null_tests)
 
 from mocks import mock_catalog, write_csv

@@ -4,9 +4,9 @@ import re
 import tomllib
 from pathlib import Path
 
-from cosmogrow.campaign_config import parse_campaign_config
+from cosmogrow.campaigns.config import parse_campaign_config
 from cosmogrow.config import parse_run_config
-from cosmogrow.simulate_config import parse_sim_config
+from cosmogrow.simulation.plan import parse_sim_config
 
 README = Path(__file__).resolve().parent.parent / "README.md"
 

@@ -7,7 +7,9 @@ import pytest
 from astropy.cosmology import Planck18
 from astropy.table import Table
 
-from cosmogrow import background, cli, remnants
+from cosmogrow import background
+from cosmogrow.cli import dispatch as cli
+from cosmogrow.consequences import remnants
 from cosmogrow.errors import ConfigError, InputError
 
 # Standard-normal table values (common practice): Φ(0.6), Φ(3.6), and the 95 % quantile.

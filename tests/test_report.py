@@ -11,7 +11,7 @@ from html.parser import HTMLParser
 
 import pytest
 
-from cosmogrow.cli import main
+from cosmogrow.cli.dispatch import main
 from cosmogrow.errors import ConfigError, InputError
 from cosmogrow.report.fit_section import parameter_label
 from cosmogrow.report.folders import collect_folders

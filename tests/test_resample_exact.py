@@ -4,9 +4,9 @@ import numpy as np
 import pytest
 from scipy import stats
 
-import cosmogrow.simulate as sim
+import cosmogrow.simulation.population as sim
 from cosmogrow.background import get_cosmology
-from cosmogrow.catalog import Catalog
+from cosmogrow.data.catalog import Catalog
 
 COSMO = get_cosmology("Planck18")
 

@@ -16,9 +16,9 @@ from scipy import integrate, stats
 from scipy.special import log_ndtr
 
 from cosmogrow.errors import ConfigError
-from cosmogrow.probit import log_phi, log_upper_orthant
-from cosmogrow.selection import SelectionSet, build_selection
-from cosmogrow.selection_physics import G_PC_KMS2_PER_MSUN, L_EDD_PER_MSUN, _distance
+from cosmogrow.selection.probit import log_phi, log_upper_orthant
+from cosmogrow.selection.compiled import SelectionSet, build_selection
+from cosmogrow.selection.physics import G_PC_KMS2_PER_MSUN, L_EDD_PER_MSUN, _distance
 
 N_MC = 1_000_000
 # Three objects: latent mean, method offset, latent variance, mass error, redshift
@@ -248,7 +248,7 @@ def test_draw_selected_matches_probability_with_a_host_cut():
 
 
 def test_rows_failing_hard_observed_cuts_are_reported():
-    from cosmogrow.catalog import Catalog
+    from cosmogrow.data.catalog import Catalog
 
     catalog = Catalog.from_columns(z=[0.5, 0.5, 0.5], log_mbh=[8.0, 8.5, 9.0], log_mbh_err=[0.1] * 3,
                                    log_mstar=[11.0, 10.0, 11.0], log_mstar_err=[0.1] * 3, sample="s")

@@ -13,10 +13,10 @@ import pytest
 
 from cosmogrow.background import get_cosmology
 from cosmogrow.config import RunConfig
-from cosmogrow.estimate import laplace
-from cosmogrow.fit import FitData, build_model
-from cosmogrow.selection import build_selection
-from cosmogrow.simulate import simulate_population
+from cosmogrow.inference.laplace import laplace
+from cosmogrow.inference.fit import FitData, build_model
+from cosmogrow.selection.compiled import build_selection
+from cosmogrow.simulation.population import simulate_population
 
 N_MOCKS = 100
 COSMO = get_cosmology("Planck18")

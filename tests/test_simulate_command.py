@@ -2,8 +2,8 @@
 
 import json
 
-from cosmogrow.catalog_io import read_catalog
-from cosmogrow.cli import main
+from cosmogrow.data.readers import read_catalog
+from cosmogrow.cli.dispatch import main
 
 CONFIG = """
 seed = 7

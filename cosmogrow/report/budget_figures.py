@@ -5,7 +5,7 @@ Drawn for print: thick lines, a colour-blind-safe palette, every axis labelled w
 
 import numpy as np
 
-from ..remnants import birth_mass
+from ..consequences.remnants import birth_mass
 
 _INK = "#222222"
 _BLUE = "#0072B2"      # Okabe & Ito palette
@@ -42,7 +42,7 @@ def plot_budget(curve, path, *, title=None):
 
     Parameters
     ----------
-    curve : dict of arrays, as made by `cosmogrow.budget.budget_curve`: z, rho_bh_physical (+ _p16,
+    curve : dict of arrays, as made by `cosmogrow.consequences.budget.budget_curve`: z, rho_bh_physical (+ _p16,
         _p84), w_eff (+ _p16, _p84), rho_de_physical; densities in Msun Mpc^-3
     path : str or Path, PNG file to write
     title : str, optional

@@ -16,7 +16,7 @@ def crosscheck_figure(crosscheck, k_summary, path):
 
     Parameters
     ----------
-    crosscheck : dict from `cosmogrow.crosscheck.distribution_crosscheck` (may say `skipped`)
+    crosscheck : dict from `cosmogrow.inference.crosscheck.distribution_crosscheck` (may say `skipped`)
     k_summary : dict with the posterior "median" and "interval95" of k, or None
     path : output file (PNG)
     """

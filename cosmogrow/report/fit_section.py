@@ -1,6 +1,6 @@
 """The web report's parts for a fit: the headline card of k, its warnings and its tables.
 
-Reads a fit's summary.json (see `cosmogrow.fit.summarise`) defensively: every block is optional.
+Reads a fit's summary.json (see `cosmogrow.inference.fit.summarise`) defensively: every block is optional.
 """
 
 import re

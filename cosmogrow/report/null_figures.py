@@ -67,7 +67,7 @@ def nulltests_figure(result, path):
 
     Parameters
     ----------
-    result : dict from `cosmogrow.nulltests.run_null_tests`
+    result : dict from `cosmogrow.checks.null_suite.run_null_tests`
     path : output file (PNG)
     """
     rows = list(result["tests"].values())
@@ -99,7 +99,7 @@ def challenge_figure(result, path):
 
     Parameters
     ----------
-    result : dict from `cosmogrow.challenge.challenge_claim`
+    result : dict from `cosmogrow.checks.challenge.challenge_claim`
     path : output file (PNG)
     """
     fig, axes = plt.subplots(1, 2, figsize=(11.0, 4.0), sharex=True)

@@ -1,0 +1,251 @@
+"""Machinery shared by the null tests and the challenge (DESIGN.md §8): fitting any catalogue of
+the data's kind like the data, the context every test receives, and the test statistics.
+
+- `Fitter`: fits k to any catalogue of the data's kind (a subset, a permutation, a mock), with the
+  selections of the samples present and a zero-point method that exists in it;
+- `NullContext`: the data, its observed fit, the seeds and the threshold;
+- statistics: `nested_pull` (Hausman 1978, Econometrica 46, 1251: for nested efficient estimators
+  Var(k_sub - k_full) = σ_sub² - σ_full²), `bonferroni`, `monte_carlo_p`, `binomial_excess_p`.
+"""
+
+from dataclasses import dataclass, replace
+
+import numpy as np
+from scipy import stats
+
+from ..errors import ConfigError
+from ..inference.laplace import find_map, laplace, start_walkers
+from ..inference.fit import FitData, build_model
+from ..campaigns.mocks import CAMPAIGN_MAX_STEPS, MODES, design_truth, fit_replica, laplace_is_sound
+from ..inference.mcmc import default_walkers, run_ensemble
+from ..seeding import child_seed, make_rng
+
+#: Default significance level of every null test (a test fails when its p-value is below it).
+#: Six tests at 1 % each give a clean data set a ~6 % chance that one of them fails.
+ALPHA = 0.01
+#: Nominal level of the intervals whose false-positive rate the k = 0 test checks.
+INTERVAL_LEVEL = 0.95
+#: Floor of Var(k_sub - k_full) as a fraction of σ_sub²: a subset that is almost the whole data
+#: has a tiny, noisily estimated difference variance.
+MIN_DIFFERENCE_VARIANCE = 0.05
+DEFAULT_REPEATS = 100
+
+
+@dataclass(frozen=True, eq=False)
+class Fitter:
+    """Fits k to catalogues of the data's kind exactly like the data.
+
+    Parameters
+    ----------
+    config : RunConfig, model, priors and sampler options of the run
+    data : FitData, the data (selections per sample, cosmology)
+    mode : "fast" (MAP + Laplace) or "mcmc"
+    selection_aware : bool, model the declared selection (False: the plain likelihood)
+
+    Calling it with a catalogue returns ``{"k", "k_std", "converged"}`` (`replicas.fit_replica`).
+    Samples absent from the catalogue lose their selection; a configured zero-point method absent
+    from it is replaced by the automatic choice. With `selection_catalog` (same rows, other
+    redshifts or labels) the selection thresholds are computed from that catalogue instead.
+    """
+
+    config: object
+    data: FitData
+    mode: str = "fast"
+    selection_aware: bool = True
+
+    def __post_init__(self):
+        if self.mode not in MODES:
+            raise ConfigError(f"--mode: expected one of {', '.join(MODES)}, got {self.mode!r}")
+
+    def _config_for(self, catalog):
+        options = self.config.model
+        if options.zero_point_method and options.zero_point_method not in catalog.method_names:
+            return replace(self.config, model=replace(options, zero_point_method=None))
+        return self.config
+
+    def _selections_for(self, catalog):
+        present = set(catalog.sample_names)
+        return {name: spec for name, spec in self.data.selections.items() if spec and name in present}
+
+    def model(self, catalog, selection_catalog=None):
+        """The run's posterior for `catalog` (`fit.build_model`); with `selection_catalog` (the same
+        rows with their original redshifts and labels) the selection thresholds come from it."""
+        config = self._config_for(catalog)
+        source = catalog if selection_catalog is None else selection_catalog
+        data = FitData(catalog=catalog, files=[], selections=self._selections_for(source),
+                       cosmology=self.data.cosmology)
+        if selection_catalog is None:
+            return build_model(config, data, selection_aware=self.selection_aware, catalog=catalog)
+        return _model_with_selection_of(config, data, catalog, source, self.selection_aware)
+
+    def __call__(self, catalog, *, seed=None, selection_catalog=None):
+        if selection_catalog is None:
+            data = FitData(catalog=catalog, files=[], selections=self._selections_for(catalog),
+                           cosmology=self.data.cosmology)
+            out = fit_replica(self._config_for(catalog), data, catalog, mode=self.mode,
+                              selection_aware=self.selection_aware, seed=seed)
+        else:
+            out = fit_model(self.config, self.model(catalog, selection_catalog), self.mode, seed)
+        return {"k": float(out["k"]), "k_std": float(out["k_std"]), "converged": bool(out["converged"])}
+
+
+def _model_with_selection_of(config, data, catalog, source, selection_aware):
+    """`fit.build_model` for `catalog` with the selection compiled on `source` (same rows)."""
+    return build_model(config, data, selection_aware=selection_aware, catalog=catalog, selection_source=source)
+
+
+def fit_model(config, model, mode="fast", seed=None):
+    """k of a prebuilt model, reduced like `replicas.fit_replica` (MAP/Laplace or MCMC median/std)."""
+    approx = laplace(model)
+    i = model.index_k
+    if mode == "fast":
+        std = float(approx.std[i])
+        return {"k": float(approx.theta[i]), "k_std": std, "converged": laplace_is_sound(model, approx)}
+    parent = seed if isinstance(seed, np.random.SeedSequence) else np.random.SeedSequence(seed)
+    walker_seed, sampler_seed = (np.random.SeedSequence(parent.entropy, spawn_key=parent.spawn_key + (j,))
+                                 for j in range(2))
+    start = start_walkers(model, approx, default_walkers(model.ndim, config.sampler.walkers),
+                          make_rng(walker_seed))
+    chain = run_ensemble(model.log_prob, start, max_steps=CAMPAIGN_MAX_STEPS,
+                         autocorr_factor=config.sampler.autocorr_factor,
+                         check_every=config.sampler.check_every, seed=sampler_seed)
+    k = chain.samples[:, i]
+    return {"k": float(np.median(k)), "k_std": float(np.std(k, ddof=1)), "converged": chain.converged}
+
+
+@dataclass(frozen=True, eq=False)
+class NullContext:
+    """What every null test needs.
+
+    Attributes
+    ----------
+    config, data : the run configuration and its data (FitData)
+    fitter : callable(catalog, *, seed=None, selection_catalog=None) -> {"k", "k_std", "converged"}
+    observed : dict, the fitter's result on the data
+    seed : int, root of the per-test, per-repeat seeds (`child_seed(seed, test, repeat)`)
+    repeats : int, permutations, splits and k = 0 mocks per test
+    alpha : float, significance level of every test
+    """
+
+    config: object
+    data: FitData
+    fitter: object
+    observed: dict
+    seed: int
+    repeats: int = DEFAULT_REPEATS
+    alpha: float = ALPHA
+
+    def null_truth(self, k=0.0):
+        """Truth table of the data's design at coupling `k` (see `truth_at`)."""
+        return truth_at(self.config, self.data, k)
+
+
+def truth_at(config, data, k):
+    """Truth table of the data's design at coupling `k`: the nuisance parameters maximise the
+    posterior of the run's model (selection-aware when a selection is declared) with k held fixed.
+
+    Raises ConfigError when k lies outside the prior range of k.
+    """
+    model = Fitter(config, data).model(data.catalog)
+    low, high = model.lower[model.index_k], model.upper[model.index_k]
+    if not low < k < high:
+        raise ConfigError(f"k = {k:g} is outside the prior range of k [{low:g}, {high:g}]")
+    start = laplace(model).theta
+    theta, _, _ = find_map(model, start, fixed={model.index_k: float(k)})
+    return design_truth(model, theta, k)
+
+
+def make_context(config, data, *, mode="fast", seed=0, repeats=DEFAULT_REPEATS, alpha=ALPHA,
+                 fitter=None):
+    """A NullContext with the data fitted once; `fitter` defaults to the run's own (`Fitter`)."""
+    if not (isinstance(repeats, (int, np.integer)) and repeats >= 1):
+        raise ConfigError(f"--repeats: expected an integer >= 1, got {repeats!r}")
+    if not 0 < alpha < 0.5:
+        raise ConfigError(f"--alpha: expected 0 < alpha < 0.5, got {alpha!r}")
+    fitter = fitter or Fitter(config, data, mode=mode)
+    observed = fitter(data.catalog, seed=child_seed(seed, 0, 0))
+    return NullContext(config=config, data=data, fitter=fitter, observed=observed, seed=int(seed),
+                       repeats=int(repeats), alpha=float(alpha))
+
+
+# ----- statistics --------------------------------------------------------------------------------
+def nested_pull(sub, full):
+    """(k_sub - k_full) / sqrt(σ_sub² - σ_full²): the pull of a subset's k against the full data's.
+
+    For nested, efficient estimators the difference is independent of the full estimate, so its
+    variance is the difference of the variances (Hausman 1978, Econometrica 46, 1251). The variance
+    is floored at MIN_DIFFERENCE_VARIANCE σ_sub².
+    """
+    var = max(sub["k_std"] ** 2 - full["k_std"] ** 2, MIN_DIFFERENCE_VARIANCE * sub["k_std"] ** 2)
+    return (sub["k"] - full["k"]) / np.sqrt(var)
+
+
+def two_sided_p(pull):
+    """Two-sided Gaussian p-value of a pull."""
+    return float(2.0 * stats.norm.sf(abs(pull)))
+
+
+def bonferroni(p_values):
+    """min(1, n min p): a conservative combination of n correlated p-values."""
+    p_values = np.asarray(p_values, dtype=float)
+    return float(min(1.0, len(p_values) * np.min(p_values))) if p_values.size else 1.0
+
+
+def monte_carlo_p(observed, draws):
+    """(1 + #{draws >= observed}) / (1 + n): the Monte Carlo p-value of a statistic whose large
+    values speak against the null (exact for exchangeable draws)."""
+    draws = np.asarray(draws, dtype=float)
+    draws = draws[np.isfinite(draws)]
+    return float((1 + np.sum(draws >= observed)) / (1 + draws.size))
+
+
+def two_sided_mc_p(observed, draws):
+    """Two-sided Monte Carlo p-value from both tails of the draws' distribution."""
+    draws = np.asarray(draws, dtype=float)
+    draws = draws[np.isfinite(draws)]
+    n = draws.size
+    tail = min(1 + np.sum(draws <= observed), 1 + np.sum(draws >= observed))
+    return float(min(1.0, 2.0 * tail / (n + 1)))
+
+
+def predictive_p(observed, draws):
+    """Two-sided p-value of `observed` as one more draw from the Gaussian the draws come from.
+
+    (x - mean) / (s sqrt(1 + 1/n)) follows Student's t with n - 1 degrees of freedom when the n
+    draws and x are independent Gaussian draws (the prediction interval of a normal sample), so
+    the p-value is not limited to 1/(n + 1) as a Monte Carlo one is. NaN for fewer than 3 draws.
+    """
+    draws = np.asarray(draws, dtype=float)
+    draws = draws[np.isfinite(draws)]
+    n = draws.size
+    if n < 3:
+        return float("nan")
+    scale = np.std(draws, ddof=1) * np.sqrt(1.0 + 1.0 / n)
+    if scale <= 0:
+        return 1.0 if observed == draws[0] else 0.0
+    return float(2.0 * stats.t.sf(abs(observed - np.mean(draws)) / scale, n - 1))
+
+
+def binomial_excess_p(successes, trials, rate):
+    """P(X >= successes) for X ~ Binomial(trials, rate): small when there are too many successes."""
+    if trials == 0:
+        return 1.0
+    return float(stats.binom.sf(successes - 1, trials, rate))
+
+
+def make_result(name, title, *, null_hypothesis, statistic, value, p_value, threshold, passed,
+                note, details=None, interval=None, skipped=None):
+    """One test's entry of nulltests.json."""
+    return {"name": name, "title": title, "null_hypothesis": null_hypothesis, "statistic": statistic,
+            "value": value, "p_value": p_value, "interval": interval, "threshold": threshold,
+            "passed": passed, "skipped": skipped, "note": " ".join(note.split()),
+            "details": details or {}}
+
+
+def skipped_result(name, title, null_hypothesis, statistic, reason):
+    return make_result(name, title, null_hypothesis=null_hypothesis, statistic=statistic, value=None,
+                       p_value=None, threshold=None, passed=None, note=f"Skipped: {reason}.",
+                       skipped=reason)
+
+
+# ----- the suite ---------------------------------------------------------------------------------

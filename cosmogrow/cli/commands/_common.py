@@ -1,0 +1,85 @@
+"""Helpers shared by subcommands: reading a fit's chain of k, checking numeric options."""
+
+from pathlib import Path
+
+import numpy as np
+
+from ...errors import ConfigError, InputError
+
+SAMPLES_FILE = "samples.npz"
+
+
+def read_k_samples(fit_dir):
+    """Flat posterior samples of k from ``FIT_DIR/samples.npz`` (array ``k``), as written by the fit.
+
+    Raises
+    ------
+    InputError
+        When the directory or file is missing, has no array ``k``, or holds no or non-finite samples.
+    """
+    fit_dir = Path(fit_dir)
+    path = fit_dir / SAMPLES_FILE
+    if not fit_dir.is_dir():
+        raise InputError(fit_dir, "not a directory; expected the output directory of `cosmogrow fit`")
+    if not path.is_file():
+        raise InputError(path, "file not found; expected the posterior samples written by `cosmogrow fit`")
+    try:
+        with np.load(path, allow_pickle=False) as data:
+            if "k" not in data.files:
+                raise InputError(path, f"no array 'k'; found {', '.join(data.files) or 'none'}", column="k")
+            samples = np.asarray(data["k"], dtype=float).ravel()
+    except (OSError, ValueError) as exc:
+        raise InputError(path, f"cannot read as .npz ({exc})") from None
+    if samples.size == 0:
+        raise InputError(path, "array 'k' is empty", column="k")
+    bad = np.flatnonzero(~np.isfinite(samples))
+    if bad.size:
+        raise InputError(path, "expected finite samples", row=int(bad[0]) + 1, column="k",
+                         value=float(samples[bad[0]]))
+    return samples
+
+
+def positive(name, value, *, allow_zero=False):
+    """Check a numeric option; ConfigError naming the option otherwise."""
+    if value is None:
+        return value
+    if not np.isfinite(value) or value < 0 or (value == 0 and not allow_zero):
+        relation = ">= 0" if allow_zero else "> 0"
+        raise ConfigError(f"{name}: expected a finite number {relation}, got {value}")
+    return value
+
+
+def add_check_options(parser, *, out_default, count_option, count_default, count_help, alpha, alpha_help):
+    """The options shared by the commands that fit mocks of a run's design (nulltest, challenge)."""
+    parser.add_argument("--config", required=True, help="run configuration (TOML)")
+    parser.add_argument("--out", default=out_default, help=f"results folder (default: {out_default})")
+    parser.add_argument("--seed", type=int,
+                        help="random seed (default: the config's, else chosen and recorded)")
+    parser.add_argument(count_option, type=int, default=count_default,
+                        help=f"{count_help} (default {count_default})")
+    parser.add_argument("--mode", choices=("fast", "mcmc"), default="fast",
+                        help="estimator: fast (MAP + Laplace, default) or mcmc")
+    parser.add_argument("--alpha", type=float, default=alpha, help=f"{alpha_help} (default {alpha:g})")
+    parser.add_argument("--quiet", action="store_true", help="no progress lines")
+
+
+def load_checked_run(args):
+    """The run configuration (seed resolved) and its data, for nulltest and challenge."""
+    from ...config import read_run_config
+    from ...inference.fit import load_data
+    from .fit import resolve_seed
+
+    config = resolve_seed(read_run_config(args.config), args.seed)
+    return config, load_data(config)
+
+
+def write_check_outputs(out, name, result, config, data, text, draw_figure):
+    """NAME.json (result + configuration + inputs), summary.md and NAME.png, written atomically."""
+    from ...outputs import staged_directory, write_json
+
+    out = Path(out)
+    with staged_directory(out) as stage:
+        write_json(stage / f"{name}.json", {**result, "config": config.to_dict(), "inputs": data.files})
+        (stage / "summary.md").write_text(text)
+        draw_figure(result, stage / f"{name}.png")
+    return out

@@ -1,0 +1,66 @@
+"""The command line. The only module that reads argv, prints for the user or sets exit codes.
+
+Each subcommand lives in `cosmogrow.cli.commands.<name>` and exposes ``register(subparsers)``, which
+adds its parser and sets ``run`` (a function of the parsed arguments returning an exit code).
+"""
+
+import argparse
+import importlib
+import sys
+
+from .. import __version__
+from ..errors import CosmogrowError
+
+# Exit codes, documented in the README.
+EXIT_OK = 0
+EXIT_BAD_INPUT = 2
+EXIT_NOT_CONVERGED = 3
+
+COMMANDS = ("fit", "simulate", "inject", "nulltest", "challenge", "budget", "remnants", "report", "demo")
+
+
+def build_parser(only=None):
+    """The argument parser; with `only`, just that subcommand is imported (a faster start)."""
+    parser = argparse.ArgumentParser(
+        prog="cosmogrow",
+        description="Measure and calibrate coupled black-hole growth, M_BH ∝ a^k.")
+    parser.add_argument("--version", action="version", version=f"cosmogrow {__version__}")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND")
+    for name in COMMANDS if only is None else (only,):
+        try:
+            module = importlib.import_module(f".commands.{name}", __package__)
+        except ModuleNotFoundError as exc:
+            if exc.name == f"{__package__}.commands.{name}":
+                continue  # command not built yet
+            raise
+        module.register(sub)
+    return parser
+
+
+def _requested_command(argv):
+    for token in argv:
+        if not token.startswith("-"):
+            return token if token in COMMANDS else None
+    return None
+
+
+def main(argv=None):
+    argv = sys.argv[1:] if argv is None else list(argv)
+    parser = build_parser(_requested_command(argv))
+    args = parser.parse_args(argv)
+    if not getattr(args, "run", None):
+        parser.print_help()
+        return EXIT_BAD_INPUT
+    args.invoke = main  # lets a command run other commands (the demo) without importing this module
+    try:
+        return int(args.run(args) or EXIT_OK)
+    except CosmogrowError as exc:
+        print(f"cosmogrow {args.command}: error: {exc}", file=sys.stderr)
+        return EXIT_BAD_INPUT
+    except KeyboardInterrupt:
+        print(f"cosmogrow {args.command}: interrupted", file=sys.stderr)
+        return 130
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())

@@ -1,1 +1,0 @@
-"""Subcommands of the command line; one module each, registered in `cosmogrow.cli.COMMANDS`."""

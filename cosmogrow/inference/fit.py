@@ -1,0 +1,177 @@
+"""A fit from configuration to results: read, build the model, MAP, MCMC, summary.
+
+Nothing here prints or draws; the fit command writes the files and the report layer the plots.
+"""
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from .. import background
+from ..data.catalog import Catalog
+from ..data.readers import read_catalogs
+from .crosscheck import crosscheck_options, crosscheck_warnings, run_crosscheck
+from ..errors import ConfigError
+from .laplace import find_map, laplace, start_walkers
+from ..model.hostprior import parent_host_priors
+from ..model.likelihood import CoupledGrowthModel, build_design
+from ..outputs import package_versions
+from .mcmc import default_walkers, run_ensemble
+from ..seeding import make_rng
+from ..selection.compiled import SelectionSet, build_selection
+from .summary import (convergence_block, degeneracy_warnings, describe_parameters,
+                      describe_samples, hypothesis_tests, offset_sensitivity)
+
+
+@dataclass(frozen=True, eq=False)
+class FitData:
+    """Catalogue, per-file provenance and compiled selection of a run."""
+
+    catalog: Catalog
+    files: list
+    selections: dict   # sample name -> list of selection models
+    cosmology: object
+
+
+@dataclass(frozen=True, eq=False)
+class FitResult:
+    """Everything a fit produced."""
+
+    model: CoupledGrowthModel
+    laplace: object
+    chain: object
+    summary: dict
+
+
+def load_data(config):
+    """Read every sample's catalogue and its selection; duplicate ids across files are an error."""
+    if not config.samples:
+        raise ConfigError(f"{config.source}: no catalogues given (list them on the command line "
+                          "or as [[sample]] tables)")
+    cosmology = background.get_cosmology(config.cosmology)
+    crosscheck_options(config.raw.get("crosscheck", {}), config.source)  # fail before the MCMC
+    entries = [(spec.path, {"sample": spec.name, "column_map": spec.columns or None,
+                            "drop_invalid": spec.drop_invalid, "default_method": spec.method})
+               for spec in config.samples]
+    catalog, files = read_catalogs(entries)
+    selections = {}
+    for spec, info in zip(config.samples, files):
+        names = info["samples"]
+        models = list(build_selection(list(spec.selection), where=f"sample '{names[0]}'"))
+        for name in names:
+            if name in selections and selections[name] != models:
+                raise ConfigError(f"sample '{name}' appears in two files with different selections")
+            selections[name] = models
+    return FitData(catalog=catalog, files=files, selections=selections, cosmology=cosmology)
+
+
+def build_model(config, data, *, selection_aware=True, catalog=None, selection_source=None, host_rounds=2):
+    """The posterior of a run; `catalog` replaces the data's rows (mocks of the same design).
+
+    `selection_source` (same rows as `catalog`) is the catalogue the selection is compiled on, for
+    null tests that move rows to other redshifts or samples but keep each row's selection; a
+    sample of `catalog` then counts as selected when any of its rows comes from a selected sample.
+    With selection and calibrated host errors, the parent host distribution of every selected
+    sample is estimated in `host_rounds` alternations with the MAP (hostprior module); the
+    resulting priors are kept on the model as `host_priors`.
+    """
+    catalog = data.catalog if catalog is None else catalog
+    source = catalog if selection_source is None else selection_source
+    selection = None
+    if selection_aware and any(data.selections.values()):
+        selection = SelectionSet.compile(data.selections, source, data.cosmology)
+    model = CoupledGrowthModel(build_design(catalog, config.model), config.model, config.priors, selection)
+    model.host_priors = {}
+    if model.selection is None or config.model.host_errors != "calibrated":
+        return model
+    cut = [name for name, models in data.selections.items() if any(m.on != "host" for m in models)]
+    selected = list(dict.fromkeys(catalog.sample[np.isin(source.sample, cut)].tolist()))
+    theta, priors = None, None
+    for _ in range(host_rounds):
+        theta, _, _ = find_map(model, theta)
+        priors = parent_host_priors(model, catalog, theta, selected, config.model.log_mstar_pivot, priors)
+        model = CoupledGrowthModel(build_design(catalog, config.model, priors), config.model,
+                                   config.priors, selection)
+        model.host_priors = priors
+        model.map_start = theta
+    return model
+
+
+def run_fit(config, data, *, chain_path=None, on_check=None, selection_aware=True):
+    """MAP, Laplace, MCMC and the summary of one run.
+
+    Returns
+    -------
+    FitResult
+    """
+    model = build_model(config, data, selection_aware=selection_aware)
+    seed = np.random.SeedSequence(config.seed)
+    walker_seed, sampler_seed = seed.spawn(2)
+    approx = laplace(model)
+    n_walkers = default_walkers(model.ndim, config.sampler.walkers)
+    start = start_walkers(model, approx, n_walkers, make_rng(walker_seed))
+    chain = run_ensemble(model.log_prob, start, max_steps=config.sampler.max_steps,
+                         autocorr_factor=config.sampler.autocorr_factor,
+                         check_every=config.sampler.check_every, chain_path=chain_path,
+                         seed=sampler_seed, on_check=on_check)
+    summary = summarise(config, data, model, approx, chain)
+    return FitResult(model=model, laplace=approx, chain=chain, summary=summary)
+
+
+def summarise(config, data, model, approx, chain):
+    """The summary.json content of a fit."""
+    sensitivity = offset_sensitivity(model, approx)
+    warnings = degeneracy_warnings(model, data.catalog, approx, sensitivity)
+    if not chain.converged:
+        warnings.insert(0, f"the chain did not converge: {chain.n_steps} steps is "
+                           f"{chain.n_steps / chain.tau_max:.1f} autocorrelation times, "
+                           f"{config.sampler.autocorr_factor:g} required")
+    if not model.selection and any(data.selections.values()):
+        warnings.append("selection is declared but not modelled in this fit (plain likelihood)")
+    failing = getattr(model.selection, "rows_failing_hard_cuts", ())
+    if len(failing):
+        ids = ", ".join(str(i) for i in data.catalog.ids[failing[:5]])
+        warnings.append(f"{len(failing)} object(s) lie below a declared hard cut on the observed mass "
+                        f"(e.g. {ids}): the declared selection does not describe these data")
+    if not any(data.selections.values()):
+        warnings.append("no selection is declared for any sample: k is only as good as the "
+                        "assumption that the samples were not selected on black-hole mass")
+    k_summary = describe_samples(chain.samples[:, model.index_k])
+    crosscheck = run_crosscheck(config, data.catalog)
+    warnings += crosscheck_warnings(crosscheck, k_summary)
+    return {
+        "k": k_summary,
+        "tests": hypothesis_tests(model, chain, approx),
+        "convergence": convergence_block(chain, config.sampler.autocorr_factor),
+        "parameters": describe_parameters(model.names, chain.samples),
+        "map": {"theta": dict(zip(model.names, approx.theta)), "log_prob": approx.log_prob,
+                "laplace_std": dict(zip(model.names, approx.std))},
+        "degeneracy": {"offset_prior_sensitivity": sensitivity},
+        "selection": {"corrected": model.selection is not None,
+                      "samples": {name: [m.to_dict() for m in models]
+                                  for name, models in data.selections.items()},
+                      "parent_host_priors": {name: {"mean": mean, "std": float(np.sqrt(var))}
+                                             for name, (mean, var) in
+                                             getattr(model, "host_priors", {}).items()}},
+        "crosscheck": crosscheck,
+        "warnings": warnings,
+        "data": data_overview(data.catalog),
+        "inputs": data.files,
+        "cosmology": background.describe(data.cosmology),
+        "config": config.to_dict(),
+        "seed": config.seed,
+        "versions": package_versions(),
+    }
+
+
+def data_overview(catalog):
+    """Per-sample counts, redshift and mass ranges, methods."""
+    rows = {}
+    for name in catalog.sample_names:
+        sel = catalog.sample == name
+        rows[name] = {"n": int(sel.sum()), "z_median": float(np.median(catalog.z[sel])),
+                      "z_range": [float(catalog.z[sel].min()), float(catalog.z[sel].max())],
+                      "log_mbh_median": float(np.median(catalog.log_mbh[sel])),
+                      "log_mstar_median": float(np.median(catalog.log_mstar[sel])),
+                      "methods": sorted(set(catalog.method[sel].tolist()))}
+    return rows

@@ -1,0 +1,371 @@
+"""The population model and its posterior (DESIGN.md §2–4), vectorised over walkers and objects.
+
+m_obs,i ~ N(mu_i, V_i),  mu_i = alpha + beta (s_i - s_pivot) - (k - beta gamma) x_i + delta_method(i),
+V_i = sigma_int^2 + e_m,i^2 + beta^2 e_s,i^2,  x_i = log10[(1 + z_i) / (1 + z_ref)].
+
+With a selection set, each object's likelihood is conditioned on its selection (§4). The model
+never validates its input data (the catalogue did) and returns -inf outside the prior.
+"""
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from ..errors import ConfigError
+
+DEFAULT_PRIORS = {
+    "k": (-10.0, 10.0),
+    "alpha": (0.0, 15.0),
+    "beta": (-3.0, 5.0),
+    "sigma_int": (0.0, 3.0),
+    "f_out": (0.0, 0.5),
+    "sigma_out": (0.1, 5.0),
+}
+LOG_2PI = np.log(2.0 * np.pi)
+# Walker chunks keep temporaries near this many elements (≈ 16 MB per float array).
+_CHUNK_ELEMENTS = 2_000_000
+
+
+@dataclass(frozen=True, eq=False)
+class Design:
+    """The data as plain arrays, in the order the likelihood uses them."""
+
+    x: np.ndarray          # log10[(1+z)/(1+z_ref)]
+    s_centred: np.ndarray  # log M* - pivot, log10 Msun
+    m_obs: np.ndarray      # log M_BH, log10 Msun
+    m_err: np.ndarray      # dex
+    s_err: np.ndarray      # dex
+    method_index: np.ndarray   # 0 = zero-point method
+    scatter_index: np.ndarray  # 0 when the scatter is shared
+    method_names: tuple        # zero-point first
+    scatter_names: tuple
+
+
+def lever_arm(z, z_ref=0.0):
+    """x = log10[(1+z)/(1+z_ref)], the lever arm of coupled growth."""
+    return np.log10((1.0 + np.asarray(z, dtype=float)) / (1.0 + z_ref))
+
+
+def choose_zero_point(catalog):
+    """Default zero-point method: the most common method of the lowest-median-redshift sample."""
+    medians = {name: np.median(catalog.z[catalog.sample == name]) for name in catalog.sample_names}
+    lowest = min(medians, key=medians.get)
+    methods, counts = np.unique(catalog.method[catalog.sample == lowest].astype(str), return_counts=True)
+    return str(methods[np.argmax(counts)])
+
+
+def calibrated_hosts(catalog, mode="calibrated", host_priors=None):
+    """Host masses and their errors as the likelihood uses them.
+
+    "first_order": the observed log M* with its error (DESIGN.md §3, first-order errors in
+    variables). "calibrated" (default): regression calibration (Carroll et al. 2006, Measurement
+    Error in Nonlinear Models, ch. 4): within each sample the true hosts are taken as Gaussian with
+    the sample's observed mean and deconvolved variance tau^2 = var(s_obs) - mean(e_s^2), so
+    s_true | s_obs ~ N((tau^2 s_obs + e_s^2 mean) / (tau^2 + e_s^2), tau^2 e_s^2 / (tau^2 + e_s^2)).
+    Without it, host errors scattering objects across a steep mass function bias each sample's
+    relation differently, and the difference leaks into k. The exact treatment is Kelly (2007).
+    `host_priors` ({sample: (mean, variance)} of the true hosts) replaces a sample's observed
+    moments, e.g. by the parent (pre-selection) distribution from `hostprior.parent_host_priors`.
+
+    Returns
+    -------
+    log_mstar : ndarray, log10 Msun;  log_mstar_err : ndarray, dex
+    """
+    s_obs = np.asarray(catalog.log_mstar, dtype=float)
+    err2 = np.asarray(catalog.log_mstar_err, dtype=float) ** 2
+    if mode == "first_order":
+        return s_obs, np.sqrt(err2)
+    host, host_var = s_obs.copy(), err2.copy()
+    host_priors = host_priors or {}
+    for name in catalog.sample_names:
+        rows = catalog.sample == name
+        if name in host_priors:
+            centre, spread = host_priors[name]
+        elif rows.sum() < 5:
+            continue  # too few hosts to estimate their spread: keep first order
+        else:
+            centre, spread = observed_host_moments(s_obs[rows], err2[rows])
+        shrink = spread / (spread + err2[rows])
+        host[rows] = shrink * s_obs[rows] + (1 - shrink) * centre
+        host_var[rows] = shrink * err2[rows]
+    return host, np.sqrt(host_var)
+
+
+def observed_host_moments(s_obs, err2):
+    """Mean and deconvolved variance of a sample's true hosts (floored at 10 % of the observed)."""
+    variance = np.var(s_obs, ddof=1)
+    return float(np.mean(s_obs)), float(max(variance - np.mean(err2), 0.1 * variance, 1e-4))
+
+
+def build_design(catalog, options, host_priors=None):
+    """Arrays of the likelihood from a Catalog and ModelOptions (host_priors: see calibrated_hosts)."""
+    zero_point = options.zero_point_method or choose_zero_point(catalog)
+    methods = list(catalog.method_names)
+    if zero_point not in methods:
+        raise ConfigError(f"model.zero_point_method: {zero_point!r} is not a method of the data; "
+                          f"expected one of {', '.join(methods)}")
+    method_names = (zero_point,) + tuple(m for m in methods if m != zero_point)
+    lookup = {name: i for i, name in enumerate(method_names)}
+    if options.scatter == "per_sample":
+        scatter_names = catalog.sample_names
+    else:
+        scatter_names = ("all",)
+    scatter_lookup = {name: i for i, name in enumerate(scatter_names)}
+    scatter_index = (np.array([scatter_lookup[s] for s in catalog.sample], dtype=np.intp)
+                     if len(scatter_names) > 1 else np.zeros(len(catalog), dtype=np.intp))
+    host, host_err = calibrated_hosts(catalog, options.host_errors, host_priors)
+    return Design(x=lever_arm(catalog.z, options.z_ref),
+                  s_centred=host - options.log_mstar_pivot,
+                  m_obs=np.asarray(catalog.log_mbh, dtype=float), m_err=np.asarray(catalog.log_mbh_err),
+                  s_err=host_err,
+                  method_index=np.array([lookup[m] for m in catalog.method], dtype=np.intp),
+                  scatter_index=scatter_index, method_names=method_names, scatter_names=scatter_names)
+
+
+class CoupledGrowthModel:
+    """Posterior of (k, nuisance parameters) given a catalogue.
+
+    Parameters
+    ----------
+    design : Design
+    options : config.ModelOptions
+    priors : dict, optional
+        Uniform ranges overriding DEFAULT_PRIORS (keys k, alpha, beta, sigma_int, f_out, sigma_out).
+    selection : object with ``log_correction(mu_true, delta, var_lat, m_obs, m_err)``, optional
+        A compiled selection set; None or one without selection gives the plain likelihood.
+    """
+
+    def __init__(self, design, options, priors=None, selection=None):
+        unknown = set(priors or {}) - set(DEFAULT_PRIORS)
+        if unknown:
+            raise ConfigError(f"priors: unknown parameter {sorted(unknown)[0]!r}; expected one of "
+                              f"{', '.join(DEFAULT_PRIORS)}")
+        self.design = design
+        self.options = options
+        self.priors = {**DEFAULT_PRIORS, **(priors or {})}
+        self.selection = selection if (selection is not None and selection.has_selection) else None
+        self.relation = options.form == "relation"
+        self.gamma = float(options.host_growth)
+        self._build_layout()
+        self._ev_ratio = design.m_err**2 + design.s_err**2
+        self._m_err2 = design.m_err**2
+        self._s_err2 = design.s_err**2
+        # A known good starting point for the MAP (set by fit.build_model after its host rounds).
+        self.map_start = None
+        # Without outliers the Gaussian part always goes through weighted moments; a selection
+        # then adds only its correction (`_selection_chunk`).
+        self._moments = None if options.outliers else GaussianMoments(self)
+
+    # ----- parameter layout -------------------------------------------------------------
+    def _build_layout(self):
+        d = self.design
+        names = ["k", "alpha"] + (["beta"] if self.relation else [])
+        scatter = (["sigma_int"] if len(d.scatter_names) == 1
+                   else [f"sigma_int[{s}]" for s in d.scatter_names])
+        offsets = [f"delta[{m}]" for m in d.method_names[1:]]
+        outliers = ["f_out", "sigma_out"] if self.options.outliers else []
+        self.names = tuple(names + scatter + offsets + outliers)
+        self.ndim = len(self.names)
+        self._i_beta = 2 if self.relation else None
+        self._i_scatter = np.arange(len(names), len(names) + len(scatter))
+        self._i_delta = np.arange(self._i_scatter[-1] + 1, self._i_scatter[-1] + 1 + len(offsets))
+        lows, highs = [], []
+        for name in self.names:
+            base = name.split("[")[0]
+            low, high = self.priors.get(base, (-np.inf, np.inf))
+            lows.append(low)
+            highs.append(high)
+        self.lower = np.array(lows)
+        self.upper = np.array(highs)
+        widths = self.options.method_offset_width
+        if isinstance(widths, dict):
+            default = widths.get("default", 0.3)
+            self.delta_widths = np.array([widths.get(m, default) for m in d.method_names[1:]], dtype=float)
+        else:
+            self.delta_widths = np.full(len(offsets), float(widths))
+
+    @property
+    def index_k(self):
+        return 0
+
+    def prior_is_proper_in_k(self):
+        low, high = self.priors["k"]
+        return np.isfinite(low) and np.isfinite(high)
+
+    # ----- probability ------------------------------------------------------------------
+    def log_prior(self, theta):
+        """Log prior density, shape (n_walkers,); -inf outside the uniform ranges."""
+        theta = np.atleast_2d(theta)
+        inside = np.all((theta > self.lower) & (theta < self.upper), axis=1)
+        out = np.where(inside, 0.0, -np.inf)
+        uniform = np.isfinite(self.lower) & np.isfinite(self.upper)
+        out = out - np.sum(np.log(self.upper[uniform] - self.lower[uniform]))
+        if self._i_delta.size:
+            z = theta[:, self._i_delta] / self.delta_widths
+            out = out - 0.5 * np.sum(z**2 + LOG_2PI + 2 * np.log(self.delta_widths), axis=1)
+        return out
+
+    def log_likelihood(self, theta):
+        """Log likelihood of the data, shape (n_walkers,)."""
+        theta = np.atleast_2d(theta)
+        n_obj = len(self.design.m_obs)
+        rows = max(1, _CHUNK_ELEMENTS // max(n_obj, 1))
+        if self._moments is None:
+            chunk = self._log_likelihood_chunk
+        elif self.selection is None:
+            chunk = self._moments.log_likelihood
+        else:
+            chunk = self._selection_chunk
+        return np.concatenate([chunk(theta[i:i + rows]) for i in range(0, len(theta), rows)])
+
+    def log_prob(self, theta):
+        """Log posterior (unnormalised), shape (n_walkers,); vectorised for emcee."""
+        theta = np.atleast_2d(theta)
+        out = self.log_prior(theta)
+        ok = np.isfinite(out)
+        if np.any(ok):
+            out[ok] = out[ok] + self.log_likelihood(theta[ok])
+        out[~np.isfinite(out)] = -np.inf
+        return out
+
+    def components(self, theta):
+        """Per-object pieces of the mean at one parameter vector: a dict with alpha, beta,
+        k_eff (k - beta gamma), sigma2 (intrinsic variance per object) and delta (offset per object)."""
+        theta = np.asarray(theta, dtype=float)
+        d = self.design
+        sig2 = theta[self._i_scatter] ** 2
+        delta_all = np.concatenate([[0.0], theta[self._i_delta]])
+        beta = theta[2] if self.relation else 1.0
+        return {"alpha": theta[1], "beta": beta, "k_eff": theta[0] - beta * self.gamma,
+                "sigma2": sig2[d.scatter_index] if sig2.size > 1 else np.full(len(d.x), sig2[0]),
+                "delta": delta_all[d.method_index]}
+
+    def per_object_log_likelihood(self, theta):
+        """Log likelihood of every object at one parameter vector, shape (N,)."""
+        return self._log_likelihood_chunk(np.atleast_2d(theta), reduce=False)[0]
+
+    def _latent(self, theta):
+        """Per object and walker: latent mean mu_true, offset delta, latent variance var_lat and the
+        total variance of m_obs (DESIGN.md §3-4)."""
+        d = self.design
+        k, alpha = theta[:, 0:1], theta[:, 1:2]
+        beta = theta[:, 2:3] if self.relation else 1.0
+        sig2 = theta[:, self._i_scatter] ** 2
+        sig2_obj = sig2 if sig2.shape[1] == 1 else sig2[:, d.scatter_index]
+        if self._i_delta.size:
+            delta_all = np.concatenate([np.zeros((len(theta), 1)), theta[:, self._i_delta]], axis=1)
+            delta = delta_all[:, d.method_index]
+        else:
+            delta = 0.0
+        mu_true = alpha + beta * d.s_centred - (k - beta * self.gamma) * d.x
+        if self.relation:
+            var_lat = sig2_obj + beta**2 * self._s_err2
+            var = var_lat + self._m_err2
+        else:
+            var_lat = sig2_obj + self._s_err2
+            var = sig2_obj + self._ev_ratio
+        return mu_true, delta, var_lat, var
+
+    def _selection_chunk(self, theta):
+        """Moments for the Gaussian part plus the selection correction (no outliers)."""
+        d = self.design
+        mu_true, delta, var_lat, _ = self._latent(theta)
+        correction = self.selection.log_correction(mu_true, delta, var_lat, d.m_obs, d.m_err)
+        return self._moments.log_likelihood(theta) + correction.sum(axis=1)
+
+    def _log_likelihood_chunk(self, theta, reduce=True):
+        d = self.design
+        mu_true, delta, var_lat, var = self._latent(theta)
+        resid2 = (d.m_obs - mu_true - delta) ** 2
+        log_like = -0.5 * (resid2 / var + np.log(var) + LOG_2PI)
+        if self.options.outliers:
+            f_out = theta[:, -2:-1]
+            var_out = var + theta[:, -1:] ** 2
+            log_out = -0.5 * (resid2 / var_out + np.log(var_out) + LOG_2PI)
+            log_like = np.logaddexp(np.log1p(-f_out) + log_like, np.log(f_out) + log_out)
+        if self.selection is not None:
+            log_like = log_like + self.selection.log_correction(mu_true, delta, var_lat, d.m_obs, d.m_err)
+        return log_like.sum(axis=1) if reduce else log_like
+
+    # ----- starting point ---------------------------------------------------------------
+    def initial_guess(self):
+        """Weighted least squares for (k, alpha, beta, offsets) and a moment estimate of the scatter."""
+        d = self.design
+        target = d.m_obs - (0.0 if self.relation else d.s_centred)
+        columns = [np.ones_like(d.x)] + ([d.s_centred] if self.relation else []) + [-d.x]
+        columns += [(d.method_index == j).astype(float) for j in range(1, len(d.method_names))]
+        design_matrix = np.column_stack(columns)
+        coef, *_ = np.linalg.lstsq(design_matrix, target, rcond=None)
+        resid = target - design_matrix @ coef
+        scatter = np.sqrt(max(np.var(resid) - np.mean(self._ev_ratio), 0.05**2))
+        theta = np.empty(self.ndim)
+        theta[0] = coef[2 if self.relation else 1]
+        theta[1] = coef[0]
+        if self.relation:
+            theta[2] = coef[1]
+        theta[self._i_scatter] = scatter
+        theta[self._i_delta] = coef[(3 if self.relation else 2):]
+        if self.options.outliers:
+            theta[-2:] = (0.05, 1.0)
+        return np.clip(theta, self.lower + 1e-3, self.upper - 1e-3)
+
+
+class GaussianMoments:
+    """Fast exact evaluation of the plain Gaussian likelihood through weighted moments.
+
+    Without selection or outliers the mean is linear in (alpha, beta, k, delta) and the weights
+    1/V_i depend on (sigma_int, beta) only, so every walker's log likelihood follows from the
+    weighted sums sum_i w_i F_i of fixed features F_i = (X_i X_i^T, X_i y_i, y_i^2): one matrix
+    product over objects instead of a dozen element-wise passes.
+    """
+
+    def __init__(self, model):
+        d = model.design
+        self.model = model
+        n_methods = len(d.method_names) - 1
+        dummies = [(d.method_index == j + 1).astype(float) for j in range(n_methods)]
+        if model.relation:
+            columns = [np.ones_like(d.x), d.s_centred + model.gamma * d.x, -d.x] + dummies
+            self.offset = float(np.mean(d.m_obs))
+            target = d.m_obs - self.offset
+            self.linear_index = [1, 2, 0] + list(model._i_delta)
+        else:
+            columns = [np.ones_like(d.x), -d.x] + dummies
+            target = d.m_obs - d.s_centred - model.gamma * d.x
+            self.offset = float(np.mean(target))
+            target = target - self.offset
+            self.linear_index = [1, 0] + list(model._i_delta)
+        design_matrix = np.column_stack(columns)
+        p = design_matrix.shape[1]
+        self.upper = np.triu_indices(p)
+        self.p = p
+        cross = (design_matrix[:, self.upper[0]] * design_matrix[:, self.upper[1]])
+        self.features = np.column_stack([cross, design_matrix * target[:, None], target**2])
+        self.n_obj = len(target)
+        self._m_err2 = d.m_err**2
+        self._s_err2 = d.s_err**2
+        self._ev_ratio = self._m_err2 + self._s_err2
+        groups = len(d.scatter_names)
+        self._group_matrix = (np.eye(groups)[d.scatter_index].T.copy() if groups > 1 else None)
+        self._multiplicity = np.where(self.upper[0] == self.upper[1], 1.0, 2.0)
+
+    def log_likelihood(self, theta):
+        model = self.model
+        sig2 = theta[:, model._i_scatter] ** 2
+        sig2_obj = sig2 if self._group_matrix is None else sig2 @ self._group_matrix
+        if model.relation:
+            var = sig2_obj + self._m_err2 + theta[:, 2:3] ** 2 * self._s_err2
+        else:
+            var = sig2_obj + self._ev_ratio
+        log_det = np.log(var).sum(axis=1)
+        sums = np.reciprocal(var, out=var) @ self.features
+        p = self.p
+        n_cross = len(self.upper[0])
+        lin = theta[:, self.linear_index]
+        lin[:, 0] -= self.offset
+        # lin^T Q lin with Q assembled from its upper triangle: sum_c sums_c * (lin lin^T)[c] * mult_c
+        outer = lin[:, self.upper[0]] * lin[:, self.upper[1]]
+        quad = np.sum(sums[:, :n_cross] * outer * self._multiplicity, axis=1)
+        cross_y = np.sum(lin * sums[:, n_cross:n_cross + p], axis=1)
+        chi2 = sums[:, -1] - 2 * cross_y + quad
+        return -0.5 * (chi2 + log_det + self.n_obj * LOG_2PI)

@@ -1,0 +1,334 @@
+"""The population simulator (DESIGN.md §5): mock catalogues drawn like real ones.
+
+Forward model of one object of a sample with mass method j, at a redshift z and with true host
+stellar mass s at the observed epoch (log10 Msun); x = log10((1+z)/(1+z_ref)):
+- s from the stellar mass function between the sample's log_mstar_min and log_mstar_max
+  (massfunction; default Baldry et al. 2012), z uniform in comoving volume over z_range;
+- host at the reference epoch s_ref = s + gamma x; m_ref = alpha + beta (s_ref - s_pivot) + eps,
+  eps ~ N(0, sigma_int²) (with probability f_out an extra N(0, sigma_out²));
+- true black-hole mass at the observed epoch m = m_ref - k x;
+- catalogue values m_obs = m + delta_j + N(0, log_mbh_err²), s_obs = s + N(0, log_mstar_err²);
+- the sample's selection applied by random draws with the probits the likelihood uses
+  (`SelectionSet.draw_selected`; flux and sphere-of-influence cuts act on m, host cuts on s_obs).
+Candidates are drawn in batches until each sample holds its requested number of selected objects.
+
+`simulate_population` does this for a configuration (simulate_config); `resample_hosts` keeps a
+catalogue's design and redraws only its black-hole masses.
+"""
+
+from typing import NamedTuple
+
+import numpy as np
+
+from .. import __version__
+from ..background import comoving_volume_element, describe
+from ..data.catalog import Catalog
+from ..errors import ConfigError
+from .massfunction import HostMassSampler, inverse_cdf_table
+from ..model.likelihood import calibrated_hosts
+from ..seeding import child_seed, make_rng
+from ..selection.compiled import _INTRINSIC as _INTRINSIC_CODE
+from ..selection.compiled import _OBSERVED as _OBSERVED_CODE
+from ..selection.compiled import SelectionSet
+from .plan import parse_sim_config, parse_truth
+
+_FIRST_BATCH = 4096
+_MAX_BATCH = 2_000_000
+#: At most this many candidates per sample; beyond, the selection is called absurdly tight.
+MAX_CANDIDATES = 50_000_000
+_CHECK_AFTER = 100_000  # candidates drawn before the projected total is checked against the cap
+_MAX_ROUNDS = 30  # rejection rounds of resample_hosts ...
+_MAX_COPIES = 4096  # ... each drawing at most this many proposals per pending row
+
+
+class SimulationResult(NamedTuple):
+    """What `simulate_population` returns; unpacks as ``catalog, truth = ...``."""
+
+    catalog: Catalog
+    truth: dict
+
+
+class RedshiftSampler:
+    """Redshifts uniform in comoving volume over [z_lo, z_hi]: inverse of the cumulative
+    ∫ dV_c/dz dz (trapezoid on 4097 points of astropy's differential comoving volume)."""
+
+    def __init__(self, cosmo, z_lo, z_hi, n_grid=4097):
+        self.grid = np.linspace(z_lo, z_hi, n_grid)
+        dvdz = comoving_volume_element(cosmo, self.grid)
+        cumulative = np.concatenate([[0.0], np.cumsum(0.5 * (dvdz[1:] + dvdz[:-1]) * np.diff(self.grid))])
+        self.cdf_grid = cumulative / cumulative[-1]
+        self._inverse = inverse_cdf_table(self.cdf_grid, self.grid)
+
+    def cdf(self, z):
+        """Fraction of the comoving volume below z."""
+        return np.interp(z, self.grid, self.cdf_grid)
+
+    def draw(self, n, rng):
+        """n redshifts from a numpy Generator."""
+        return self._inverse(rng.random(n))
+
+
+_REDSHIFT_SAMPLERS = {}
+
+
+def redshift_sampler(cosmo, z_lo, z_hi):
+    """A cached RedshiftSampler: building one integrates astropy's volume element on 4097 points,
+    most of the cost of a small mock (astropy cosmologies are immutable, so their repr is a key)."""
+    key = (repr(cosmo), float(z_lo), float(z_hi))
+    if key not in _REDSHIFT_SAMPLERS:
+        if len(_REDSHIFT_SAMPLERS) > 64:
+            _REDSHIFT_SAMPLERS.clear()
+        _REDSHIFT_SAMPLERS[key] = RedshiftSampler(cosmo, z_lo, z_hi)
+    return _REDSHIFT_SAMPLERS[key]
+
+
+def simulate_population(sim_config, seed=None):
+    """Simulate every sample of a configuration.
+
+    Parameters
+    ----------
+    sim_config : dict
+        Parsed TOML: ``seed``, ``[cosmology]`` (default Planck18), ``[mass_function]`` (default
+        Baldry et al. 2012), ``[truth]`` and ``[[sample]]`` tables (full reference in
+        `cosmogrow.simulation.plan`). Defaults: truth k = 0, alpha = 8.69, beta = 1,
+        sigma_int = 0.28 dex, gamma = 0, s_pivot = 11, z_ref = 0, delta = {} (0 for every
+        method), f_out = 0, sigma_out = 1 dex; per sample (name, n, z_range = [lo, hi] and method
+        required) log_mbh_err = 0.1 / 0.2 / 0.4 dex for dynamical / reverberation / virial,
+        log_mstar_err = 0.15 dex, log_mstar_min = 10.0, log_mstar_max = 12.5, no selection.
+    seed : int, SeedSequence or Generator, optional
+        Wins over the configuration's ``seed``; with neither, fresh entropy is drawn and recorded.
+        Sample i draws from the stream ``child_seed(seed, i)``, independent of the other samples
+        (a Generator is used for every sample in turn, and the recorded seed is None).
+
+    Returns
+    -------
+    SimulationResult (catalog, truth)
+        catalog : Catalog of every sample (ids ``<sample>-000001`` ...)
+        truth : dict with the parameters (k, alpha, beta, sigma_int, gamma, s_pivot, z_ref,
+        delta = {method: dex}, f_out, sigma_out) and ``seed``, ``cosmology``, ``mass_function``,
+        ``samples`` (each sample's settings, candidates drawn and acceptance).
+
+    Raises
+    ------
+    ConfigError
+        A bad configuration, or a selection so tight that a sample would need more than
+        `MAX_CANDIDATES` candidates.
+    """
+    config = parse_sim_config(sim_config)
+    if seed is None:
+        seed = config.seed
+    if seed is None:
+        seed = int(np.random.SeedSequence().entropy)
+    shared = seed if isinstance(seed, np.random.Generator) else None
+    catalogs, infos = [], []
+    for i, spec in enumerate(config.samples):
+        rng = shared if shared is not None else make_rng(child_seed(seed, i))
+        catalog, info = _simulate_sample(spec, config, rng)
+        catalogs.append(catalog)
+        infos.append(info)
+    seed_record = seed.entropy if isinstance(seed, np.random.SeedSequence) else seed
+    seed_record = None if shared is not None else seed_record
+    truth = {**config.truth.to_dict(), "seed": seed_record, "cosmology": describe(config.cosmology),
+             "mass_function": config.mass_function.to_dict(), "samples": infos,
+             "cosmogrow_version": __version__}
+    return SimulationResult(Catalog.concat(catalogs), truth)
+
+
+def _simulate_sample(spec, config, rng):
+    hosts = HostMassSampler(config.mass_function, spec.log_mstar_min, spec.log_mstar_max)
+    redshifts = redshift_sampler(config.cosmology, spec.z_lo, spec.z_hi)
+    parts, n_have, n_tried = [], 0, 0
+    while n_have < spec.n:
+        rate = (n_have + 1.0) / (n_tried + 2.0) if n_tried else 1.0
+        size = int(min(_MAX_BATCH, max(_FIRST_BATCH, 1.2 * (spec.n - n_have) / rate + 100)))
+        batch = _draw_candidates(spec, config.truth, hosts, redshifts, rng, size)
+        selection = SelectionSet.from_arrays({spec.name: spec.selection}, z=batch["z"],
+                                             log_mstar=batch["log_mstar"], sample=spec.name,
+                                             cosmo=config.cosmology)
+        keep = selection.draw_selected(batch.pop("m_true"), batch["log_mbh"], rng)
+        parts.append({key: value[keep] for key, value in batch.items()})
+        n_have += int(keep.sum())
+        n_tried += size
+        projected = n_tried * spec.n / max(n_have, 1)
+        if n_have < spec.n and (n_tried >= MAX_CANDIDATES
+                                or (n_tried >= _CHECK_AFTER and projected > MAX_CANDIDATES)):
+            raise ConfigError(f"sample '{spec.name}': selection acceptance {n_have / n_tried:.2g} after "
+                              f"{n_tried} candidates; {spec.n} objects would need ~{projected:.2g} "
+                              f"candidates (cap {MAX_CANDIDATES:.0e}); loosen the selection or change "
+                              "the redshift or host-mass range")
+    columns = {key: np.concatenate([p[key] for p in parts])[:spec.n] for key in parts[0]}
+    n = spec.n
+    catalog = Catalog(
+        ids=np.array([f"{spec.name}-{i + 1:06d}" for i in range(n)], dtype=object), z=columns["z"],
+        log_mbh=columns["log_mbh"], log_mbh_err=np.full(n, spec.log_mbh_err),
+        log_mstar=columns["log_mstar"], log_mstar_err=np.full(n, spec.log_mstar_err),
+        sample=_labels(n, spec.name), method=_labels(n, spec.method),
+        files=(f"simulated sample '{spec.name}'",))
+    info = {**spec.to_dict(), "n_candidates": n_tried, "acceptance": n_have / n_tried}
+    return catalog, info
+
+
+def _labels(n, text):
+    out = np.empty(n, dtype=object)
+    out[:] = text
+    return out
+
+
+def _draw_candidates(spec, truth, hosts, redshifts, rng, size):
+    """One batch of candidates before selection: z, m_true, log_mbh (observed), log_mstar (observed)."""
+    s_true = hosts.draw(size, rng)
+    z = redshifts.draw(size, rng)
+    m_true = _true_masses(truth, s_true, z, truth.scatter_of(spec.name), rng)
+    m_obs = m_true + truth.offset_of(spec.method) + spec.log_mbh_err * rng.standard_normal(size)
+    s_obs = s_true + spec.log_mstar_err * rng.standard_normal(size)
+    return {"z": z, "m_true": m_true, "log_mbh": m_obs, "log_mstar": s_obs}
+
+
+def _true_masses(truth, s_true, z, sigma_int, rng):
+    """True log M_BH at the observed epoch (log10 Msun) for hosts s_true at redshifts z."""
+    x = np.log10((1.0 + z) / (1.0 + truth.z_ref))
+    scatter = np.asarray(sigma_int) * rng.standard_normal(len(z))
+    if truth.f_out > 0:
+        outlier = rng.random(len(z)) < truth.f_out
+        scatter = scatter + outlier * truth.sigma_out * rng.standard_normal(len(z))
+    m_ref = truth.alpha + truth.beta * (s_true + truth.gamma * x - truth.s_pivot) + scatter
+    return m_ref - truth.k * x
+
+
+def resample_hosts(catalog, truth, selections_by_sample, cosmo, seed=None, *, host_errors="calibrated"):
+    """Redraw only the black-hole masses of a catalogue, keeping its design.
+
+    Every row keeps its id, z, log_mstar (as observed), errors, sample and method; only log_mbh
+    changes. The true host mass behind each row is drawn from the distribution the fit's
+    likelihood assumes for it given the observed one (`host_errors`, as the run configuration's
+    model.host_errors; a truth table's "host_priors" gives the parent host distribution of selected
+    samples), so a resampled catalogue is an exact draw from the fitted model:
+    - "calibrated" (the fit's default): regression calibration, s ~ N(calibrated mean,
+      calibrated error²) from `cosmogrow.model.likelihood.calibrated_hosts`;
+    - "first_order": s = log_mstar + N(0, log_mstar_err²) (a flat prior on the true host);
+    - "fixed": s = log_mstar (host errors then enter only the likelihood).
+    Then m follows the forward model of the module note and m_obs = m + delta + N(0, log_mbh_err²).
+    With selection, each row is redrawn until it is selected (vectorised rejection over the rows
+    still pending), so each row is a draw from p(m_obs | S, s_obs, z). A row gets up to ~8e4
+    proposals (`_MAX_ROUNDS` rounds of up to `_MAX_COPIES`): rows accepted less often than ~1e-5
+    raise.
+
+    Parameters
+    ----------
+    catalog : Catalog
+    truth : dict or Truth, a [truth] table or a truth dict returned by `simulate_population`
+    selections_by_sample : dict, sample name -> selection (tables or models); may be empty
+    cosmo : astropy cosmology
+    seed : int, SeedSequence or Generator, optional
+    host_errors : "calibrated", "first_order" or "fixed"
+
+    Returns
+    -------
+    Catalog
+
+    Raises
+    ------
+    ConfigError
+        An unknown `host_errors`, or rows that the selection essentially never accepts (e.g.
+        failing a hard host-mass cut).
+    """
+    host_priors = truth.get("host_priors") if isinstance(truth, dict) else None
+    truth = parse_truth(truth)
+    rng = make_rng(seed)
+    selection = SelectionSet.compile(selections_by_sample or {}, catalog, cosmo)
+    n = len(catalog)
+    if not np.all(selection.host_pass):
+        bad = np.flatnonzero(~selection.host_pass)
+        raise ConfigError(f"resample_hosts: {len(bad)} row(s) fail a host_mass_cut of their sample and "
+                          f"can never be selected (e.g. id '{catalog.ids[bad[0]]}', sample "
+                          f"'{catalog.sample[bad[0]]}', log_mstar {catalog.log_mstar[bad[0]]:.3f})")
+    host_mean, host_err = _latent_hosts(catalog, host_errors, host_priors)
+    sigma, delta = np.empty(n), np.empty(n)
+    for name in catalog.sample_names:
+        sigma[catalog.sample == name] = truth.scatter_of(name)
+    for method in catalog.method_names:
+        delta[catalog.method == method] = truth.offset_of(method)
+    m_obs = np.full(n, np.nan)
+    pending = np.arange(n)
+    for round_index in range(_MAX_ROUNDS):
+        if round_index == _EXACT_AFTER_ROUNDS:
+            exact = _single_cut_rows(selection, pending) if truth.f_out == 0 else pending[:0]
+            if len(exact):
+                m_obs[exact] = _draw_truncated(truth, catalog, selection, exact, host_mean, host_err,
+                                               sigma, delta, rng)
+                pending = np.setdiff1d(pending, exact, assume_unique=True)
+                if not len(pending):
+                    return catalog.replace(log_mbh=m_obs)
+        copies = int(min(2**round_index, _MAX_COPIES, max(1, _MAX_BATCH // len(pending))))
+        rows = np.repeat(pending, copies)
+        s_true = host_mean[rows] + host_err[rows] * rng.standard_normal(len(rows))
+        m_true = _true_masses(truth, s_true, catalog.z[rows], sigma[rows], rng)
+        m_draw = m_true + delta[rows] + catalog.log_mbh_err[rows] * rng.standard_normal(len(rows))
+        keep = selection.draw_selected(m_true, m_draw, rng, rows=rows)
+        accepted_rows, first = np.unique(rows[keep], return_index=True)
+        m_obs[accepted_rows] = m_draw[np.flatnonzero(keep)[first]]
+        pending = np.setdiff1d(pending, accepted_rows, assume_unique=True)
+        if not len(pending):
+            return catalog.replace(log_mbh=m_obs)
+    names = sorted(set(catalog.sample[pending].tolist()))
+    raise ConfigError(f"resample_hosts: {len(pending)} row(s) of sample(s) {', '.join(names)} were never "
+                      f"selected in {_MAX_ROUNDS} rounds of redraws (e.g. id '{catalog.ids[pending[0]]}'); "
+                      "the selection rejects them under this truth (check host-mass cuts and thresholds)")
+
+
+HOST_ERROR_MODES = ("calibrated", "first_order", "fixed")
+# Rows still unselected after this many rejection rounds (acceptance below ~1/15) and subject to a
+# single black-hole-mass cut are drawn exactly from the truncated distribution instead.
+_EXACT_AFTER_ROUNDS = 4
+
+
+def _single_cut_rows(selection, rows):
+    """The rows (of `rows`) whose selection is exactly one cut on the black-hole mass."""
+    on = selection._slot_on[:, rows]
+    mass_cuts = np.sum((on == _INTRINSIC_CODE) | (on == _OBSERVED_CODE), axis=0)
+    return rows[mass_cuts == 1]
+
+
+def _draw_truncated(truth, catalog, selection, rows, host_mean, host_err, sigma, delta, rng):
+    """Exact draws of m_obs given selection for rows with a single probit cut.
+
+    The latent mass is Gaussian, m ~ N(mu, v) with the host uncertainty folded in; a probit cut on
+    a Gaussian variable y (m, or m_obs = m + delta + e) keeps it when u = y - w eps >= m_lim, so
+    u is drawn from its truncated normal and y | u from the conditional normal; for a cut on m,
+    m_obs = m + delta + e afterwards. No rejection, so rows of tiny acceptance cost nothing extra.
+    """
+    from scipy import stats
+
+    x = np.log10((1.0 + catalog.z[rows]) / (1.0 + truth.z_ref))
+    mu = (truth.alpha + truth.beta * (host_mean[rows] + truth.gamma * x - truth.s_pivot) - truth.k * x)
+    var = sigma[rows] ** 2 + truth.beta**2 * host_err[rows] ** 2
+    err = catalog.log_mbh_err[rows]
+    on = selection._slot_on[:, rows]
+    slot = np.argmax((on == _INTRINSIC_CODE) | (on == _OBSERVED_CODE), axis=0)
+    cols = np.arange(len(rows))
+    observed = on[slot, cols] == _OBSERVED_CODE
+    lim = selection._slot_lim[:, rows][slot, cols]
+    width2 = selection._slot_width[:, rows][slot, cols] ** 2
+    centre = mu + np.where(observed, delta[rows], 0.0)
+    var_y = var + np.where(observed, err**2, 0.0)
+    spread_u = np.sqrt(var_y + width2)
+    low = (lim - centre) / spread_u
+    u = centre + spread_u * stats.truncnorm.rvs(low, np.inf, random_state=rng)
+    gain = var_y / (var_y + width2)
+    y = centre + gain * (u - centre) + np.sqrt(var_y * (1 - gain)) * rng.standard_normal(len(rows))
+    return np.where(observed, y, y + delta[rows] + err * rng.standard_normal(len(rows)))
+
+
+def _latent_hosts(catalog, mode, host_priors=None):
+    """Mean and spread (log10 Msun, dex) of each row's true host given the observed one.
+
+    `host_priors` ({sample: (mean, variance)}, the parent hosts of selected samples as the fit
+    estimated them; a truth table's "host_priors") replaces the observed moments of those samples,
+    so the selection then acts on (true host, mass) as it does in the fit's likelihood.
+    """
+    if mode not in HOST_ERROR_MODES:
+        raise ConfigError(f"resample_hosts: host_errors: expected one of {', '.join(HOST_ERROR_MODES)}, "
+                          f"got {mode!r}")
+    if mode == "fixed":
+        return np.asarray(catalog.log_mstar, dtype=float), np.zeros(len(catalog))
+    return calibrated_hosts(catalog, mode, host_priors)
