@@ -59,7 +59,7 @@ class SampleSpec:
 
 @dataclass(frozen=True)
 class ModelOptions:
-    """Options of the population model (DESIGN.md §3)."""
+    """Options of the population model (docs/method.md#model)."""
 
     form: str = "ratio"
     z_ref: float = 0.0
@@ -74,7 +74,7 @@ class ModelOptions:
 
 @dataclass(frozen=True)
 class SamplerOptions:
-    """Options of the MCMC run (DESIGN.md §6). walkers = 0 chooses max(32, 4 ndim)."""
+    """Options of the MCMC run (docs/method.md#estimators). walkers = 0 chooses max(32, 4 ndim)."""
 
     walkers: int = 0
     max_steps: int = 20000

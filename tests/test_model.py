@@ -19,7 +19,7 @@ def make_model(form="ratio", scatter="shared", outliers=False, gamma=0.0, seed=3
 
 
 def independent_log_like(cat, theta, names, gamma=0.0):
-    """Sum of scipy.stats.norm.logpdf over objects, written from DESIGN.md §3 directly."""
+    """Sum of scipy.stats.norm.logpdf over objects, written from docs/method.md#model directly."""
     p = dict(zip(names, theta))
     beta = p.get("beta", 1.0)
     x = np.log10(1 + cat.z)

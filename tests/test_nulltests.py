@@ -189,7 +189,7 @@ def test_permutation_keeps_each_objects_selection():
 
 def test_reference_split_flags_an_assumed_host_growth():
     # with gamma = 1 fixed, only k - gamma is identified: moved objects, which did not grow, look
-    # like k = gamma (DESIGN.md §3)
+    # like k = gamma (docs/method.md#model)
     cat = mock_catalog(np.random.default_rng(6), 0.0, samples=((0.03, 100, "d"), (1.0, 100, "d")))
     plain = run_null_tests(RunConfig(), data_of(cat), seed=6, repeats=20, tests=["reference_split"])
     grown = run_null_tests(RunConfig(model=ModelOptions(host_growth=1.0)), data_of(cat), seed=6,

@@ -1,4 +1,4 @@
-"""Calibration statistics of a campaign's results (DESIGN.md §7).
+"""Calibration statistics of a campaign's results (docs/method.md#calibration).
 
 Per injected k and estimator: bias, RMSE, interval widths, coverage of the 68/95 % intervals with
 binomial errors, power to exclude k = 0 and k = 3. Simulation-based calibration (Talts et al. 2018,

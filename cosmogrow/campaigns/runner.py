@@ -1,4 +1,4 @@
-"""Injection-recovery campaigns and simulation-based calibration (DESIGN.md §7).
+"""Injection-recovery campaigns and simulation-based calibration (docs/method.md#calibration).
 
 A campaign simulates mocks of one design for every injected k on a grid (and, optionally, for k
 drawn from a prior: SBC), fits each mock exactly like the data, journals every finished job, and

@@ -1,4 +1,4 @@
-"""Does a claimed k survive the data's selection? (DESIGN.md §8, "survival" of a claimed k.)
+"""Does a claimed k survive the data's selection? (docs/method.md#null-tests, "survival" of a claimed k.)
 
 Mocks of the data's own design (`replicas.draw_replica`: hosts, redshifts, methods and errors kept,
 black-hole masses redrawn with each sample's declared selection) are simulated under the claimed k

@@ -1,4 +1,4 @@
-"""Machinery shared by the null tests and the challenge (DESIGN.md §8): fitting any catalogue of
+"""Machinery shared by the null tests and the challenge (docs/method.md#null-tests): fitting any catalogue of
 the data's kind like the data, the context every test receives, and the test statistics.
 
 - `Fitter`: fits k to any catalogue of the data's kind (a subset, a permutation, a mock), with the

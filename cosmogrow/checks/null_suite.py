@@ -1,4 +1,4 @@
-"""Null tests of a k measurement (DESIGN.md §8): would the method find a signal where there is none,
+"""Null tests of a k measurement (docs/method.md#null-tests): would the method find a signal where there is none,
 does every subset agree, could the declared selection alone have produced the estimate?
 
 Each test (in `cosmogrow.checks.null_tests`) states its null hypothesis, its statistic, its threshold and

@@ -1,4 +1,4 @@
-"""The six null tests (DESIGN.md §8). Each takes a `nullkit.NullContext` and returns one result
+"""The six null tests (docs/method.md#null-tests). Each takes a `nullkit.NullContext` and returns one result
 (`nullkit.make_result`): null hypothesis, statistic, value, p-value, threshold, pass/fail, note.
 
 Seeds: test t, repeat r uses ``child_seed(seed, t, r)`` for its random choices and

@@ -1,4 +1,4 @@
-"""The dark-energy budget of a coupled population of stellar-remnant black holes (DESIGN.md §9).
+"""The dark-energy budget of a coupled population of stellar-remnant black holes (docs/method.md#budget).
 
 Black holes form with comoving mass density d rho = eps_BH psi(z_f) dt_f and then grow as
 (a / a_f)^k, so the comoving density at scale factor a is

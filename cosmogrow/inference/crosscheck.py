@@ -1,4 +1,4 @@
-"""The assumption-light cross-check of k (DESIGN.md §6): distribution matching on a grid of k.
+"""The assumption-light cross-check of k (docs/method.md#estimators): distribution matching on a grid of k.
 
 For each k on a grid, every object is projected to the reference epoch, ``t_i + (k - b gamma) x_i``
 with ``x_i = log10[(1+z_i)/(1+z_ref)]`` (b = 1 for the "ratio" statistic), and the projected
@@ -28,7 +28,7 @@ from ..model.likelihood import lever_arm
 
 TESTS = ("ks", "anderson_darling", "epps_singleton")
 STATISTICS = ("ratio", "residual")
-#: p-value above which a k is "consistent" (DESIGN.md §6).
+#: p-value above which a k is "consistent" (docs/method.md#estimators).
 P_THRESHOLD = 0.05
 #: Epps–Singleton needs a few objects per sample for its characteristic-function covariance
 #: (scipy refuses fewer than 5); below this it is skipped.

@@ -1,7 +1,7 @@
 """The MCMC run: emcee's ensemble sampler, vectorised over walkers, with an HDF5 chain.
 
 The only module that imports emcee. Runs until the chain is longer than `autocorr_factor`
-integrated autocorrelation times (DESIGN.md §6) or a step cap, and says which.
+integrated autocorrelation times (docs/method.md#estimators) or a step cap, and says which.
 """
 
 from dataclasses import dataclass

@@ -1,4 +1,4 @@
-"""What a fit reports (DESIGN.md §6): intervals, hypothesis tests, convergence, degeneracies."""
+"""What a fit reports (docs/method.md#estimators): intervals, hypothesis tests, convergence, degeneracies."""
 
 import numpy as np
 from scipy import stats

@@ -1,4 +1,4 @@
-"""The population model and its posterior (DESIGN.md §2–4), vectorised over walkers and objects.
+"""The population model and its posterior (docs/method.md#model), vectorised over walkers and objects.
 
 m_obs,i ~ N(mu_i, V_i),  mu_i = alpha + beta (s_i - s_pivot) - (k - beta gamma) x_i + delta_method(i),
 V_i = sigma_int^2 + e_m,i^2 + beta^2 e_s,i^2,  x_i = log10[(1 + z_i) / (1 + z_ref)].
@@ -57,7 +57,7 @@ def choose_zero_point(catalog):
 def calibrated_hosts(catalog, mode="calibrated", host_priors=None):
     """Host masses and their errors as the likelihood uses them.
 
-    "first_order": the observed log M* with its error (DESIGN.md §3, first-order errors in
+    "first_order": the observed log M* with its error (docs/method.md#model, first-order errors in
     variables). "calibrated" (default): regression calibration (Carroll et al. 2006, Measurement
     Error in Nonlinear Models, ch. 4): within each sample the true hosts are taken as Gaussian with
     the sample's observed mean and deconvolved variance tau^2 = var(s_obs) - mean(e_s^2), so
@@ -246,7 +246,7 @@ class CoupledGrowthModel:
 
     def _latent(self, theta):
         """Per object and walker: latent mean mu_true, offset delta, latent variance var_lat and the
-        total variance of m_obs (DESIGN.md §3-4)."""
+        total variance of m_obs (docs/method.md#model)."""
         d = self.design
         k, alpha = theta[:, 0:1], theta[:, 1:2]
         beta = theta[:, 2:3] if self.relation else 1.0

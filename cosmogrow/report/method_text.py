@@ -1,8 +1,8 @@
 """Fixed wording of the web report: how k is measured, the caveats, and the references.
 
-References are those of the project's design and reference notes (DESIGN.md, REFERENCES.md), which
-give the authors, years and journal references; the paper titles, and the journal details of the
-entries marked "[memory]" in the comments, are recalled rather than read there.
+The full statement of the method, with equations and sources, is docs/method.md; this text is its
+summary for the page. The paper titles, and the journal details of the entries marked "[memory]" in
+the comments, are recalled rather than read in the papers.
 """
 
 from .htmlkit import Markup

@@ -4,10 +4,10 @@ The latent (intrinsic) mass of object i at its observed epoch is m ~ N(mu_true, 
 catalogue holds m_obs = m + delta + N(0, m_err²). Each selection cut is a probit (selection_physics);
 on the "intrinsic" mass it is Φ((m - m_lim)/w), on the "observed" mass Φ((m_obs - m_lim)/w).
 `SelectionSet.log_correction` returns, per object, log[p(m_obs | S, ...) / N(m_obs; mu_true + delta,
-var_lat + m_err²)] (DESIGN.md §4): the numerator's probit factor minus log P(S | s, z).
+var_lat + m_err²)] (docs/method.md#selection): the numerator's probit factor minus log P(S | s, z).
 
 Several cuts multiply. Hard cuts (w = 0) on the same mass merge exactly into one at the largest
-threshold. One remaining cut has the closed forms of DESIGN.md §4. Two remaining cuts are exact too:
+threshold. One remaining cut has the closed forms of docs/method.md#selection. Two remaining cuts are exact too:
 each cut is a hard cut on a Gaussian variable (m - w ε or m_obs - w ε), so P(S) is a bivariate
 normal orthant probability (probit.log_upper_orthant), with covariance var_lat between two cuts
 that share only m and var_lat + m_err² between two observed cuts; the numerator is the same with

@@ -1,4 +1,4 @@
-"""Selection models: each maps to a probit in the latent black-hole mass (DESIGN.md §4).
+"""Selection models: each maps to a probit in the latent black-hole mass (docs/method.md#selection).
 
 A model that acts on the black-hole mass m (log10 Msun) selects an object with probability
 ``P(S | m) = Φ((m - m_lim) / w)``; `threshold(z, log_mstar, cosmo)` returns ``(m_lim, w)`` arrays

@@ -1,4 +1,4 @@
-"""The population simulator (DESIGN.md §5): mock catalogues drawn like real ones.
+"""The population simulator (docs/method.md#simulator): mock catalogues drawn like real ones.
 
 Forward model of one object of a sample with mass method j, at a redshift z and with true host
 stellar mass s at the observed epoch (log10 Msun); x = log10((1+z)/(1+z_ref)):

@@ -9,7 +9,7 @@ from ._common import add_check_options, load_checked_run, positive, write_check_
 def register(subparsers):
     parser = subparsers.add_parser(
         "nulltest", help="null tests of a k measurement",
-        description="Run the null tests of DESIGN.md §8 on the data of a run configuration: "
+        description="Run the null tests of docs/method.md#null-tests on the data of a run configuration: "
                     "redshift permutation, reference split, leave samples out, host-mass matching, "
                     "single method, and k = 0 with the data's selection.")
     add_check_options(parser, out_default="nulltests", count_option="--repeats",
