@@ -17,14 +17,9 @@ from pathlib import Path
 
 from ..errors import InputError
 from ..outputs import sha256_file
+from .sections import KIND_ORDER, SECTIONS
 
-KIND_FILES = {"nulltests": "nulltests.json", "challenge": "challenge.json", "budget": "budget.json",
-              "remnants": "remnants.json"}
-KIND_ORDER = ("fit", "campaign", "nulltests", "challenge", "budget", "remnants")
-KIND_TITLES = {"fit": "Posterior of k", "campaign": "Calibration by injection and recovery",
-               "nulltests": "Null tests", "challenge": "Does a claimed k survive the selection?",
-               "budget": "Dark-energy budget of coupled black holes",
-               "remnants": "Stellar-remnant test"}
+KIND_FILES = {s.kind: s.marker for s in SECTIONS if s.marker != "summary.json"}
 TEXT_FILES = ("summary.md",)
 MAX_TEXT_CHARS = 20000
 
