@@ -41,7 +41,8 @@ def folders(tmp_path_factory):
 @pytest.fixture(scope="session")
 def page(folders, tmp_path_factory):
     out = tmp_path_factory.mktemp("page") / "report.html"
-    assert build_report(list(folders.values()), out, title=EVIL_TITLE) == out
+    written = build_report(list(folders.values()), out, title=EVIL_TITLE)
+    assert written.path == out and written.problems == ()
     return out.read_text(encoding="utf-8")
 
 
@@ -171,8 +172,7 @@ def test_non_convergence_and_unmodelled_selection_are_flagged(folders, tmp_path)
     folder = tmp_path / "stalled"
     folder.mkdir()
     (folder / "summary.json").write_text(json.dumps(summary))
-    out = build_report([folder], tmp_path / "r.html")
-    text = out.read_text()
+    text = build_report([folder], tmp_path / "r.html").path.read_text()
     panel = text[text.index('id="warnings"'):text.index('id="contents"')]
     assert "the chain did not converge" in panel
     assert "selection is not modelled" in panel
@@ -188,7 +188,7 @@ def test_unexpected_layouts_are_shown_without_crashing(tmp_path):
     folder.mkdir()
     for name, value in odd.items():
         (folder / name).write_text(json.dumps(value))
-    text = build_report([folder], tmp_path / "odd.html").read_text()
+    text = build_report([folder], tmp_path / "odd.html").path.read_text()
     for title in ("Posterior of k", "Null tests", "Does a claimed k survive", "Dark-energy budget",
                   "Stellar-remnant test"):
         assert title in text

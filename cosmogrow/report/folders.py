@@ -7,8 +7,10 @@ Kinds (and the file that marks them):
   challenge  challenge.json
   budget     budget.json
   remnants   remnants.json
-JSON is read defensively: a file that cannot be parsed is noted as a problem of the folder, not
-an exception, unless the folder then holds nothing readable at all.
+Every file is checked before it is drawn (`validation`): a file that cannot be parsed, a key of the
+wrong type, a campaign table that is not Parquet or a figure that is not a PNG is noted as a problem
+of the folder (the page lists it among the warnings and the command exits with code 3), not an
+exception, unless the folder then holds nothing readable at all.
 """
 
 import json
@@ -17,9 +19,12 @@ from pathlib import Path
 
 from ..errors import InputError
 from ..outputs import sha256_file
-from .sections import KIND_ORDER, SECTIONS
+from .sections import BY_KIND, KIND_ORDER, SECTIONS
+from .validation import check_document, check_parquet
 
 KIND_FILES = {s.kind: s.marker for s in SECTIONS if s.marker != "summary.json"}
+FIT_FILES = ("samples.npz", "chain.h5")
+PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"
 TEXT_FILES = ("summary.md",)
 MAX_TEXT_CHARS = 20000
 
@@ -66,12 +71,46 @@ def _read_json(path, problems):
 
 def _summary_kind(summary, folder):
     """'fit', 'campaign' or None for the content of a summary.json."""
-    if isinstance(summary.get("recovery"), dict) or (folder / "results.parquet").is_file():
-        if not isinstance(summary.get("parameters"), dict):
+    if "recovery" in summary or (folder / "results.parquet").is_file():
+        if "parameters" not in summary:
             return "campaign"
-    if isinstance(summary.get("k"), dict) or isinstance(summary.get("parameters"), dict):
+    if "k" in summary or "parameters" in summary or any((folder / name).is_file() for name in FIT_FILES):
         return "fit"
     return None
+
+
+def _read_summary(folder, documents, problems):
+    """Read summary.json (a fit's or a campaign's) into `documents`, departures into `problems`."""
+    path = folder / "summary.json"
+    summary = _read_json(path, problems) if path.is_file() else None
+    if summary is None:
+        return
+    kind = _summary_kind(summary, folder)
+    if kind is None:
+        problems.append(f"{path.name}: neither a fit's summary (key k) nor a campaign's (key recovery)")
+        return
+    documents[kind] = summary
+    problems += check_document(kind, path.name, summary)
+    if kind == "campaign" and (folder / "results.parquet").is_file():
+        problem = check_parquet(folder / "results.parquet")
+        problems += [problem] if problem else []
+
+
+def _figures(folder, problems):
+    """Every PNG of the folder; a file that is not a PNG image is a problem, not a figure."""
+    figures = []
+    for path in sorted(p for p in folder.iterdir() if p.suffix.lower() == ".png" and p.is_file()):
+        try:
+            with path.open("rb") as stream:
+                head = stream.read(8)
+        except OSError as exc:
+            problems.append(f"{path.name}: cannot be read ({exc.strerror or exc})")
+            continue
+        if head != PNG_SIGNATURE:
+            problems.append(f"{path.name}: not a PNG image")
+            continue
+        figures.append(path)
+    return tuple(figures)
 
 
 def read_folder(path):
@@ -82,22 +121,14 @@ def read_folder(path):
     ResultFolder or None
     """
     folder = Path(path)
-    documents, hashes, problems = {}, {}, []
-    summary_path = folder / "summary.json"
-    if summary_path.is_file():
-        summary = _read_json(summary_path, problems)
-        if summary is not None:
-            kind = _summary_kind(summary, folder)
-            if kind:
-                documents[kind] = summary
-                hashes[summary_path.name] = sha256_file(summary_path)
+    documents, problems = {}, []
+    _read_summary(folder, documents, problems)
     for kind, name in KIND_FILES.items():
         file = folder / name
-        if file.is_file():
-            value = _read_json(file, problems)
-            if value is not None:
-                documents[kind] = value
-                hashes[name] = sha256_file(file)
+        value = _read_json(file, problems) if file.is_file() else None
+        if value is not None:
+            documents[kind] = value
+            problems += check_document(kind, name, value)
     if not documents:
         if problems:
             raise InputError(folder, "no readable results: " + "; ".join(problems))
@@ -110,7 +141,8 @@ def read_folder(path):
                 texts[name] = file.read_text(encoding="utf-8")[:MAX_TEXT_CHARS]
             except (OSError, UnicodeDecodeError) as exc:
                 problems.append(f"{name}: cannot be read ({exc})")
-    figures = tuple(sorted(p for p in folder.iterdir() if p.suffix.lower() == ".png" and p.is_file()))
+    figures = _figures(folder, problems)
+    hashes = {BY_KIND[kind].marker: sha256_file(folder / BY_KIND[kind].marker) for kind in documents}
     label = folder.resolve().name or str(folder)
     return ResultFolder(path=folder, label=label, documents=documents, figures=figures, texts=texts,
                         hashes=hashes, problems=tuple(problems))

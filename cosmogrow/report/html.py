@@ -10,6 +10,7 @@ URIs); a Content-Security-Policy forbids any.
 
 import os
 import tempfile
+from dataclasses import dataclass
 from datetime import datetime, timezone
 from pathlib import Path
 
@@ -36,7 +37,22 @@ def environment():
                               undefined=jinja2.StrictUndefined, trim_blocks=True, lstrip_blocks=True)
 
 
-def build_report(result_dirs, out_path, *, title=None, generated_at=None):
+@dataclass(frozen=True)
+class WrittenReport:
+    """A written page and the problems of its inputs.
+
+    Attributes
+    ----------
+    path : Path, the HTML file written
+    problems : tuple of str, one line per input file that could not be read or is malformed
+        (each also listed among the page's warnings)
+    """
+
+    path: Path
+    problems: tuple = ()
+
+
+def build_report(result_dirs, out_path, *, title=None, generated_at=None) -> WrittenReport:
     """Collect results folders into one self-contained HTML page.
 
     Parameters
@@ -53,7 +69,8 @@ def build_report(result_dirs, out_path, *, title=None, generated_at=None):
 
     Returns
     -------
-    Path of the written page.
+    WrittenReport
+        The page's path and the problems of its inputs (unreadable or malformed files).
 
     Raises
     ------
@@ -71,7 +88,8 @@ def build_report(result_dirs, out_path, *, title=None, generated_at=None):
         _write_atomically(out_path, page)
     except OSError as exc:
         raise ConfigError(f"{out_path}: cannot write the report ({exc.strerror or exc})") from None
-    return out_path
+    problems = tuple(f"{folder.path / problem}" for folder in folders for problem in folder.problems)
+    return WrittenReport(out_path, problems)
 
 
 def _write_atomically(path, text):
@@ -131,7 +149,7 @@ def _entry(folder, label, kind, index):
     if error:
         warnings = [f"some warnings of this {section.name} could not be read ({error})"]
     if kind == folder.kinds[0]:
-        warnings += [f"could not read {problem}" for problem in folder.problems]
+        warnings += [f"input file {folder.path / problem}" for problem in folder.problems]
     context, error = _safely(section.context, document, folder, fallback={})
     return {"folder": folder, "label": label, "kind": kind, "name": section.name, "title": section.title,
             "colour": section.colour, "document": document, "anchor": f"r{index}", "path": str(folder.path),
@@ -194,4 +212,4 @@ def render_page(folders, *, title=None, generated_at=None):
         method=method_text, provenance=provenance_context(entries, folders, stamp), numbering=Numbering())
 
 
-__all__ = ["build_report", "render_page"]
+__all__ = ["WrittenReport", "build_report", "render_page"]
