@@ -74,7 +74,8 @@ def budget_warnings(document):
 
 def budget_glance(document):
     fraction = as_float(dig(document, "fraction_of_lambda"))
-    text = f"Ω_BH = {fmt_sig(dig(document, 'omega_bh'))} at k = {fmt(dig(document, 'k'), 2)}"
+    which = "the posterior median " if dig(document, "point_values_are") == "posterior medians" else ""
+    text = f"Ω_BH = {fmt_sig(dig(document, 'omega_bh'))} at {which}k = {fmt(dig(document, 'k'), 2)}"
     return text + (f", {fmt_sig(100 * fraction)} % of Ω_Λ" if fraction is not None else "")
 
 

@@ -110,16 +110,23 @@ def nulltests_definitions(document):
     return items
 
 
+# How the null tests and the challenge estimate k ("mode" of their results files).
+MODE_WORDS = {"fast": "fast estimate: maximum a posteriori k ± Laplace σ",
+              "mcmc": "posterior median ± standard deviation of MCMC draws"}
+
+
+def estimator_words(document):
+    """Which estimator gave the k a results file quotes, in words (from its "mode")."""
+    mode = dig(document, "mode")
+    return MODE_WORDS.get(mode, f"estimator {mode}" if mode else "estimator not recorded")
+
+
 def nulltests_facts(document):
     observed = dig(document, "observed")
     pairs = []
-    if isinstance(observed, dict):
-        estimate = _first(observed, ("k", "median"))
-        spread = _first(observed, ("k_std", "std"))
-        pairs.append(("k of the data", f"{fmt(estimate)} ± {fmt(spread)}" if spread is not None else fmt(estimate)))
-    elif observed is not None:
-        pairs.append(("k of the data", fmt(observed)))
-    labels = (("mode", "estimator"), ("alpha", "level of each test"), ("repeats", "repeats per test"),
+    if observed is not None:
+        pairs.append((f"k of the data ({estimator_words(document)})", _observed_text(observed)))
+    labels = (("alpha", "level of each test"), ("repeats", "repeats per test"),
               ("seed", "seed"), ("selection_modelled", "selection modelled"))
     pairs += [(label, fmt(dig(document, key))) for key, label in labels if dig(document, key) is not None]
     return pairs
@@ -156,6 +163,9 @@ def nulltests_glance(document):
     failed = [str(dig(row, "title", default=name)) for (name, row), v in zip(rows, verdicts) if v is False]
     ran = sum(v is not None for v in verdicts)
     text = f"{sum(v is True for v in verdicts)} of {ran} null tests pass"
+    k = dig(document, "observed", "k")
+    if k is not None:
+        text = f"data k = {fmt(k, 2)} ({estimator_words(document)}); " + text
     if ran < len(rows):
         text += f" ({len(rows) - ran} skipped)"
     return text + (f"; failed: {', '.join(failed)}" if failed else "")
@@ -199,12 +209,13 @@ def _observed_text(value):
 def challenge_facts(document):
     observed = dig(document, "observed")
     pairs = [("claimed k", fmt(claimed_k(document), 2))]
-    if isinstance(observed, dict):
-        pairs += [(f"k of the data, {ESTIMATOR_NAMES.get(name, name)} fit", _observed_text(value))
+    words = estimator_words(document)
+    if isinstance(observed, dict) and not {"k", "median"} & set(observed):
+        pairs += [(f"k of the data, {ESTIMATOR_NAMES.get(name, name)} fit ({words})", _observed_text(value))
                   for name, value in observed.items()]
     elif observed is not None:
-        pairs.append(("k of the data", fmt(observed)))
-    labels = (("replicas", "mocks per hypothesis"), ("mode", "estimator"), ("alpha", "level"),
+        pairs.append((f"k of the data ({words})", _observed_text(observed)))
+    labels = (("replicas", "mocks per hypothesis"), ("alpha", "level"),
               ("selection_declared", "selection declared"), ("seed", "seed"))
     pairs += [(label, fmt(dig(document, key))) for key, label in labels if dig(document, key) is not None]
     return pairs
@@ -298,4 +309,5 @@ def challenge_warnings(document):
 
 def challenge_glance(document):
     verdict = verdict_text(document)
-    return verdict or f"claimed k = {fmt(claimed_k(document), 2)} tested against mocks of the data"
+    text = verdict or f"claimed k = {fmt(claimed_k(document), 2)} tested against mocks of the data"
+    return f"{text} (k of the data by {estimator_words(document)})"

@@ -16,7 +16,7 @@ _AXIS_SYMBOLS = {"k": ("$k$", None), "alpha": (r"$\alpha$", r"log$_{10}$ M$_\odo
 
 
 def parameter_axis_label(name):
-    """Axis label of a model parameter: its symbol, the sample/method tag, its unit.
+    r"""Axis label of a model parameter: its symbol, the sample/method tag, its unit.
 
     ``sigma_int[local]`` gives ``$\sigma_\mathrm{int}$[local] (dex)``; a tag's ``$`` is escaped so that
     text from the data never turns into mathtext; unknown names are shown as given.

@@ -231,8 +231,25 @@ def _crosscheck_rows(compared, tests):
         rng = dig(row, "range")
         rows.append([compared, _TEST_LABELS.get(name, name), fmt(dig(row, "best_k"), 2),
                      fmt_interval(rng, 2) if rng else ("skipped" if skipped else "none"),
-                     fmt_p(dig(row, "p_best")), Cell(skipped or "", "text")])
+                     _p_text(name, dig(row, "p_best")), Cell(skipped or "", "text")])
     return rows
+
+
+# scipy.stats.anderson_ksamp caps its p-value to this range (interpolation in a table).
+AD_P_RANGE = (0.001, 0.25)
+AD_NOTE = ("Anderson–Darling p-values are capped to [0.001, 0.25] by scipy's interpolation table: "
+           "≥ 0.250 and ≤ 0.001 mark values at the caps.")
+
+
+def _p_text(test, value):
+    """A p-value; an Anderson–Darling value at scipy's caps is shown as a bound."""
+    number = as_float(value)
+    if test == "anderson_darling" and number is not None:
+        if number >= AD_P_RANGE[1]:
+            return f"≥ {AD_P_RANGE[1]:.3f}"
+        if number <= AD_P_RANGE[0]:
+            return f"≤ {AD_P_RANGE[0]:.3f}"
+    return fmt_p(value)
 
 
 def crosscheck_table(summary):
@@ -255,11 +272,13 @@ def crosscheck_table(summary):
         headers, rows = headers[:-1], [row[:-1] for row in rows]
     reference = dig(check, "reference")
     statistic = dig(check, "statistic")
+    clipped = any(row[1] == _TEST_LABELS["anderson_darling"] for row in rows)
     return table(headers, rows, numeric=[2, 3, 4],
                  caption=f"Assumption-light cross-check: the high-z statistic "
                          f"({statistic or 'log M_BH/M_*'}) shifted by +k log₁₀(1+z) and compared with "
                          f"the reference sample{f' {reference!s}' if reference else ''} by two-sample "
-                         f"tests (no Gaussian scatter assumed; selection and method offsets not modelled).")
+                         f"tests (no Gaussian scatter assumed; selection and method offsets not modelled)."
+                         + (f" {AD_NOTE}" if clipped else ""))
 
 
 def sensitivity_table(summary):
@@ -272,10 +291,41 @@ def sensitivity_table(summary):
                          "width that grows with the prior means the data cannot separate k from the offsets.")
 
 
+def zero_point_text(summary):
+    """The mass method the offsets are measured from, and whether it was configured or chosen."""
+    configured = dig(summary, "config", "model", "zero_point_method")
+    if isinstance(configured, str) and configured:
+        return f"{configured} (set in the configuration)"
+    data = dig(summary, "data", default={})
+    methods = set()
+    for row in data.values() if isinstance(data, dict) else []:
+        listed = dig(row, "methods")
+        methods.update(map(str, listed) if isinstance(listed, list) else ())
+    params = dig(summary, "parameters", default={})
+    offsets = {name[6:-1] for name in (params if isinstance(params, dict) else {}) if name.startswith("delta[")}
+    left = sorted(methods - offsets)
+    if len(left) == 1:
+        return f"{left[0]} (chosen by cosmogrow; the other methods' offsets δ are fitted against it)"
+    return "–"
+
+
+def model_facts(summary):
+    """(term, text) facts of the fit: how k is quoted, the likelihood, the model's choices."""
+    model = dig(summary, "config", "model", default={})
+    pairs = [("k quoted as", "posterior median and central 68 % / 95 % intervals of the MCMC draws "
+                             "(emcee); MAP and Laplace σ in the parameter table"),
+             ("likelihood", fit_kind_label(summary)),
+             ("zero-point mass method", zero_point_text(summary)),
+             ("relation form", fmt(dig(model, "form"))), ("intrinsic scatter", fmt(dig(model, "scatter"))),
+             ("reference redshift z_ref", fmt(dig(model, "z_ref"), 2)),
+             ("host-mass pivot (log₁₀ M☉)", fmt(dig(model, "log_mstar_pivot"), 2))]
+    return [(term, text) for term, text in pairs if text != "–"]
+
+
 def fit_context(summary, folder=None):
-    """Data of the template sections/fit.html.j2: the fit's tables in reading order (figures are
-    added by the page; `folder` is unused)."""
-    return {"tables": [data_table(summary), parameter_table(summary), tests_table(summary)],
+    """Data of the template sections/fit.html.j2: the fit's facts and tables in reading order
+    (figures are added by the page; `folder` is unused)."""
+    return {"facts": model_facts(summary), "tables": [data_table(summary), parameter_table(summary), tests_table(summary)],
             "crosscheck_skipped": dig(summary, "crosscheck", "skipped"),
             "crosscheck": crosscheck_table(summary),
             "pair": [convergence_table(summary), sensitivity_table(summary)]}

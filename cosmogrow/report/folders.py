@@ -14,6 +14,7 @@ exception, unless the folder then holds nothing readable at all.
 """
 
 import json
+import math
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -186,3 +187,32 @@ def collect_folders(paths):
                                      "nulltests.json, challenge.json, budget.json or remnants.json)")
         found.extend(children)
     return found
+
+
+def read_truth(path):
+    """The true k of simulated data from a truth file (JSON with a finite number under "k").
+
+    Parameters
+    ----------
+    path : str or Path, e.g. demo_data/truth.json
+
+    Returns
+    -------
+    dict with "k" (float) and "source" (the file's name)
+
+    Raises
+    ------
+    InputError
+        The file cannot be read, is not a JSON object, or has no finite number under "k".
+    """
+    path = Path(path)
+    try:
+        value = json.loads(path.read_text(encoding="utf-8"))
+    except (OSError, UnicodeDecodeError, json.JSONDecodeError) as exc:
+        raise InputError(path, f"cannot be read as JSON ({getattr(exc, 'strerror', None) or exc})") from None
+    if not isinstance(value, dict):
+        raise InputError(path, f"expected a JSON object with the true k, got {type(value).__name__}")
+    k = value.get("k")
+    if isinstance(k, bool) or not isinstance(k, (int, float)) or not math.isfinite(k):
+        raise InputError(path, "expected a finite number for the true k", column="k", value=k)
+    return {"k": float(k), "source": path.name}

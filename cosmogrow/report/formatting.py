@@ -206,6 +206,18 @@ def flat_scalars(value, prefix="", *, limit=80, skip=()):
     return out
 
 
+# What a context function may raise on a results file of unexpected layout.
+RENDER_ERRORS = (KeyError, TypeError, ValueError, AttributeError, IndexError, ZeroDivisionError)
+
+
+def safely(function, *args, fallback=None):
+    """Call a context function; on an unexpected file layout return (fallback, the error text)."""
+    try:
+        return function(*args), None
+    except RENDER_ERRORS as exc:
+        return fallback, f"{type(exc).__name__}: {exc}"
+
+
 class Numbering:
     """Running numbers of the page's tables and figures (called by the templates in reading order)."""
 
@@ -223,4 +235,4 @@ class Numbering:
 
 
 __all__ = ["Cell", "Figure", "Markup", "Numbering", "Table", "as_float", "dig", "figure", "flat_scalars",
-           "fmt", "fmt_interval", "fmt_p", "fmt_sig", "pretty_json", "table"]
+           "fmt", "fmt_interval", "fmt_p", "fmt_sig", "pretty_json", "safely", "table"]

@@ -19,15 +19,15 @@ import jinja2
 from .. import __version__
 from ..errors import ConfigError
 from . import fit_section, method_text
-from .folders import collect_folders
-from .formatting import Cell, Numbering, dig, figure, fmt, fmt_interval, fmt_p, table
-from .provenance import provenance_context
+from .folders import collect_folders, read_truth
+from .formatting import Numbering, figure, safely
+from .headline import headline_context
+from .provenance import provenance_context, shown_path
 from .sections import BY_KIND
 from .style import INK, PALETTE
 
 CSP = "default-src 'none'; img-src data:; style-src 'unsafe-inline'; base-uri 'none'; form-action 'none'"
 TEMPLATES = Path(__file__).parent / "templates"
-_RENDER_ERRORS = (KeyError, TypeError, ValueError, AttributeError, IndexError, ZeroDivisionError)
 
 
 def environment():
@@ -52,7 +52,7 @@ class WrittenReport:
     problems: tuple = ()
 
 
-def build_report(result_dirs, out_path, *, title=None, generated_at=None) -> WrittenReport:
+def build_report(result_dirs, out_path, *, title=None, generated_at=None, truth=None) -> WrittenReport:
     """Collect results folders into one self-contained HTML page.
 
     Parameters
@@ -66,6 +66,8 @@ def build_report(result_dirs, out_path, *, title=None, generated_at=None) -> Wri
         Page title (default: "cosmogrow report").
     generated_at : datetime, optional
         Time stamp of the report (default: now, UTC).
+    truth : str or Path, optional
+        Truth file of simulated data (JSON with the true "k"); the page then shows the true k.
 
     Returns
     -------
@@ -83,7 +85,9 @@ def build_report(result_dirs, out_path, *, title=None, generated_at=None) -> Wri
     if out_path.is_dir():
         raise ConfigError(f"{out_path}: is a folder; expected the path of the HTML file to write")
     folders = collect_folders(result_dirs)
-    page = render_page(folders, title=title, generated_at=generated_at)
+    truth = read_truth(truth) if truth is not None else None
+    page = render_page(folders, title=title, generated_at=generated_at, truth=truth,
+                       base=out_path.absolute().parent)
     try:
         _write_atomically(out_path, page)
     except OSError as exc:
@@ -115,14 +119,6 @@ def _labels(folders):
             for f in folders]
 
 
-def _safely(function, *args, fallback=None):
-    """Call a context function; on an unexpected file layout return (fallback, the error text)."""
-    try:
-        return function(*args), None
-    except _RENDER_ERRORS as exc:
-        return fallback, f"{type(exc).__name__}: {exc}"
-
-
 def _figures_of(folder, kind):
     """Figures of one section: its own PNGs in their order, then (in the folder's first section
     only) every other PNG of the folder; unreadable files as a text note."""
@@ -142,74 +138,45 @@ def _figures_of(folder, kind):
     return figures
 
 
-def _entry(folder, label, kind, index):
+def _entry(folder, label, kind, index, base):
     """One results section of the page: who, what, its warnings, its template's data, figures."""
     section, document = BY_KIND[kind], folder.documents[kind]
-    warnings, error = _safely(section.warnings, document, fallback=[])
+    warnings, error = safely(section.warnings, document, fallback=[])
     if error:
         warnings = [f"some warnings of this {section.name} could not be read ({error})"]
     if kind == folder.kinds[0]:
         warnings += [f"input file {folder.path / problem}" for problem in folder.problems]
-    context, error = _safely(section.context, document, folder, fallback={})
+    context, error = safely(section.context, document, folder, fallback={})
     return {"folder": folder, "label": label, "kind": kind, "name": section.name, "title": section.title,
-            "colour": section.colour, "document": document, "anchor": f"r{index}", "path": str(folder.path),
+            "colour": section.colour, "document": document, "anchor": f"r{index}", "path": shown_path(folder.path, base),
             "warnings": warnings, "context": context, "error": error,
             "pills": fit_section.status_pills(document) if kind == "fit" else [],
             "figures": _figures_of(folder, kind)}
 
 
-def _entries(folders):
+def _entries(folders, base):
     entries = []
     for folder, label in zip(folders, _labels(folders)):
         for kind in folder.kinds:
-            entries.append(_entry(folder, label, kind, len(entries) + 1))
+            entries.append(_entry(folder, label, kind, len(entries) + 1, base))
     return entries
 
 
-def _comparison_table(fits):
-    rows = []
-    for entry in fits:
-        doc = entry["document"]
-        k = dig(doc, "k", default={})
-        conv = dig(doc, "convergence", "converged")
-        rows.append([entry["label"], Cell(fit_section.fit_kind_label(doc), "text"), fmt(dig(k, "median"), 2),
-                     fmt_interval(dig(k, "interval68"), 2), fmt_interval(dig(k, "interval95"), 2),
-                     fmt_p(dig(doc, "tests", "p_k_le_0")), fmt(dig(doc, "tests", "sigma_vs_k0"), 2),
-                     Cell(fmt(conv), "good" if conv else ("bad" if conv is False else None))])
-    return table(["fit", "likelihood", "median k", "68 % interval", "95 % interval", "P(k ≤ 0)",
-                  "σ against k = 0", "converged"], rows, numeric=range(2, 8),
-                 caption="k from every fit on this page, side by side.")
-
-
-def headline_context(entries):
-    """Data of the headline: a card per fit, the comparison table, one glance line per other result."""
-    fits = [e for e in entries if e["kind"] == "fit"]
-    cards = [card for card in (_safely(fit_section.fit_card, e["label"], e["document"], e["anchor"],
-                                       len(e["warnings"]))[0] for e in fits) if card]
-    glance = []
-    for entry in entries:
-        function = BY_KIND[entry["kind"]].glance
-        if function is not None:
-            text, _ = _safely(function, entry["document"], fallback="see its section")
-            glance.append({"href": f"#{entry['anchor']}", "what": f"{entry['name']} · {entry['label']}",
-                           "text": text, "colour": entry["colour"]})
-    return {"cards": cards, "comparison": _comparison_table(fits) if len(fits) > 1 else None,
-            "glance": glance}
-
-
-def render_page(folders, *, title=None, generated_at=None):
-    """The HTML text of the report of already-read folders (see `folders.collect_folders`)."""
+def render_page(folders, *, title=None, generated_at=None, truth=None, base=None):
+    """The HTML text of the report of already-read folders (see `folders.collect_folders`);
+    `truth` is None or a dict from `folders.read_truth`; paths are shown relative to the folder
+    `base` of the page (None: as given)."""
     stamp = (generated_at or datetime.now(timezone.utc)).isoformat(timespec="seconds")
-    entries = _entries(folders)
+    entries = _entries(folders, base)
     kinds = [kind for kind in BY_KIND if any(e["kind"] == kind for e in entries)]
     subtitle = (f"{len(folders)} results folder{'s' if len(folders) != 1 else ''} "
                 f"({', '.join(BY_KIND[k].name for k in kinds)}) · generated {stamp} · cosmogrow {__version__}")
     palette = dict(zip(("teal", "ochre", "plum", "slate", "brick", "olive"), PALETTE), ink=INK)
     return environment().get_template("page.html.j2").render(
         title=title or "cosmogrow report", subtitle=subtitle, stamp=stamp, version=__version__, csp=CSP,
-        palette=palette, entries=entries, headline=headline_context(entries),
+        palette=palette, entries=entries, headline=headline_context(entries, truth),
         warnings=[(e, text) for e in entries for text in e["warnings"]],
-        method=method_text, provenance=provenance_context(entries, folders, stamp), numbering=Numbering())
+        method=method_text, provenance=provenance_context(entries, folders, stamp, base), numbering=Numbering())
 
 
 __all__ = ["WrittenReport", "build_report", "render_page"]

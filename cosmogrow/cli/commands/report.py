@@ -17,13 +17,17 @@ def register(subparsers):
     parser.add_argument("folders", nargs="+", metavar="DIR", help="results folders")
     parser.add_argument("--out", default="report.html", help="HTML file to write (default: report.html)")
     parser.add_argument("--title", help="page title (default: cosmogrow report)")
+    parser.add_argument("--truth", metavar="FILE",
+                        help="truth file of simulated data (JSON with the true k, e.g. demo_data/truth.json); "
+                             "the page then shows the true k beside the fits")
     parser.set_defaults(run=run)
 
 
 def run(args):
     from ...report.html import build_report
 
-    written = build_report([Path(folder) for folder in args.folders], args.out, title=args.title)
+    written = build_report([Path(folder) for folder in args.folders], args.out, title=args.title,
+                           truth=args.truth)
     print(f"report written to {written.path}")
     if written.problems:
         count = len(written.problems)
