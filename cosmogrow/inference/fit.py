@@ -104,8 +104,8 @@ def build_model(config, data, *, selection_aware=True, catalog=None, selection_s
     return model
 
 
-def run_fit(config, data, *, chain_path=None, on_check=None, selection_aware=True):
-    """MAP, Laplace, MCMC and the summary of one run.
+def run_fit(config, data, *, chain_path=None, on_check=None, selection_aware=True, chain_attrs=None):
+    """MAP, Laplace, MCMC and the summary of one run (`chain_attrs`: see inference.resume).
 
     Returns
     -------
@@ -120,7 +120,7 @@ def run_fit(config, data, *, chain_path=None, on_check=None, selection_aware=Tru
     chain = run_ensemble(model.log_prob, start, max_steps=config.sampler.max_steps,
                          autocorr_factor=config.sampler.autocorr_factor,
                          check_every=config.sampler.check_every, chain_path=chain_path,
-                         seed=sampler_seed, on_check=on_check)
+                         seed=sampler_seed, on_check=on_check, chain_attrs=chain_attrs)
     summary = summarise(config, data, model, approx, chain)
     return FitResult(model=model, laplace=approx, chain=chain, summary=summary)
 
