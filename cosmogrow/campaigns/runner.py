@@ -212,8 +212,9 @@ def run_campaign(context, out_dir, executor, *, on_progress=None):
     if stamp_path.is_file():
         old = json.loads(stamp_path.read_text())
         if old.get("fingerprint") != stamp["fingerprint"]:
-            raise ConfigError(f"{out_dir}: holds the journal of a different campaign (seed "
-                              f"{old.get('seed')}); use another --out or remove {JOURNAL}")
+            raise ConfigError(f"{stamp_path}: {out_dir} holds the journal of a different campaign "
+                              f"(seed {old.get('seed')}); give --force to start this one afresh, or "
+                              f"another --out")
     else:
         stamp_path.write_text(json.dumps(stamp, indent=2) + "\n")
     tasks = plan_tasks(spec)

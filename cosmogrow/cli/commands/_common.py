@@ -82,6 +82,20 @@ def positive(name, value, *, allow_zero=False):
     return value
 
 
+def resolve_seed(config, seed):
+    """Command-line seed, else the config's, else a fresh one (recorded in the results)."""
+    if seed is None and config.seed is None:
+        seed = int(np.random.SeedSequence().entropy % 2**32)
+    return config.with_overrides(seed=seed)
+
+
+def check_alpha(alpha):
+    """--alpha is a probability strictly between 0 and 1."""
+    if not (np.isfinite(alpha) and 0 < alpha < 1):
+        raise ConfigError(f"--alpha: expected a number between 0 and 1 (exclusive), got {alpha}")
+    return alpha
+
+
 def add_check_options(parser, *, out_default, count_option, count_default, count_help, alpha, alpha_help):
     """The options shared by the commands that fit mocks of a run's design (nulltest, challenge)."""
     parser.add_argument("--config", required=True, help="run configuration (TOML)")
@@ -100,7 +114,6 @@ def load_checked_run(args):
     """The run configuration (seed resolved) and its data, for nulltest and challenge."""
     from ...config import read_run_config
     from ...inference.fit import load_data
-    from .fit import resolve_seed
 
     config = resolve_seed(read_run_config(args.config), args.seed)
     claim_out(args, args.command)

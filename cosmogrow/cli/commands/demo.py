@@ -44,6 +44,7 @@ def stages(data, out, only_fit=False):
             ("stellar remnants", ["remnants", str(data / "remnants.csv"), "--posterior", fit_dir,
                                   "--out", str(out / "remnants")]),
         ]
+    plan = [(name, [*argv, "--force"]) for name, argv in plan]  # a second demo replaces the first
     folders = [argv[argv.index("--out") + 1] for _, argv in plan]
     plan.append(("report", ["report", *folders, "--out", str(out / "report.html"),
                             "--title", "cosmogrow demo: an invented four-survey programme"]))

@@ -10,7 +10,7 @@ from ...config import read_run_config
 from ...inference.fit import load_data, run_fit
 from ...inference.resume import chain_attrs, find_resumable, fit_fingerprint, stored_seed
 from ...outputs import STAGE_TAG, staged_directory, write_json
-from ._common import add_seed_option, claim_out
+from ._common import add_seed_option, claim_out, resolve_seed
 
 EXIT_NOT_CONVERGED = 3
 
@@ -32,13 +32,6 @@ def register(subparsers):
     again.add_argument("--force", action="store_true", help="replace the results of an earlier fit in --out")
     parser.add_argument("--quiet", action="store_true", help="no progress lines")
     parser.set_defaults(run=run)
-
-
-def resolve_seed(config, seed):
-    """Command-line seed, else the config's, else a fresh one (recorded in the results)."""
-    if seed is None and config.seed is None:
-        seed = int(np.random.SeedSequence().entropy % 2**32)
-    return config.with_overrides(seed=seed)
 
 
 def progress_printer(quiet):
