@@ -56,7 +56,7 @@ def load_data(config):
             raise ConfigError("no catalogues given (list them on the command line or as [[sample]] tables)")
         cosmology = background.get_cosmology(config.cosmology)
         crosscheck_options(config.raw.get("crosscheck", {}), config.source)  # fail before the MCMC
-        built = [list(build_selection(list(spec.selection), where=f"sample[{i + 1}].selection"))
+        built = [list(build_selection(list(spec.selection), where=f"sample[{i + 1}]"))
                  for i, spec in enumerate(config.samples)]
         entries = [(spec.path, {"sample": spec.name, "column_map": spec.columns or None,
                                 "drop_invalid": spec.drop_invalid, "default_method": spec.method})
