@@ -9,7 +9,7 @@ import numpy as np
 
 from .. import background
 from ..data.catalog import Catalog
-from ..data.readers import read_catalogs
+from ..data.readers import MAP_TARGETS, read_catalogs
 from .crosscheck import crosscheck_options, crosscheck_warnings, run_crosscheck
 from ..config import check_against_data
 from ..errors import ConfigError
@@ -58,6 +58,11 @@ def load_data(config):
         crosscheck_options(config.raw.get("crosscheck", {}), config.source)  # fail before the MCMC
         built = [list(build_selection(list(spec.selection), where=f"sample[{i + 1}]"))
                  for i, spec in enumerate(config.samples)]
+        for i, spec in enumerate(config.samples):
+            unknown = sorted(set(spec.columns.values()) - set(MAP_TARGETS))
+            if unknown:
+                raise ConfigError(f"sample[{i + 1}].columns: unknown target column {unknown[0]!r}; "
+                                  f"expected one of {', '.join(MAP_TARGETS)}")
         entries = [(spec.path, {"sample": spec.name, "column_map": spec.columns or None,
                                 "drop_invalid": spec.drop_invalid, "default_method": spec.method})
                    for spec in config.samples]
