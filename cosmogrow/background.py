@@ -35,13 +35,13 @@ def get_cosmology(spec=None):
     Parameters
     ----------
     spec : None, str, dict or astropy Cosmology
-        None gives Planck18. A string names a realisation. A dict either has ``name`` (a
+        None (or an empty table) gives Planck18. A string names a realisation. A dict either has ``name`` (a
         realisation) or ``model`` (one of LambdaCDM, FlatLambdaCDM, wCDM, FlatwCDM, w0waCDM,
         Flatw0waCDM) with its parameters: H0 in km/s/Mpc, Om0, Ode0, w0, wa, and optionally
         Tcmb0 (K), Neff, Ob0, m_nu (eV). Without ``model``, a dict with Ode0 is LambdaCDM
         (w0waCDM when w0 or wa is given), without Ode0 it is flat.
     """
-    if spec is None:
+    if spec is None or (isinstance(spec, dict) and not spec):  # an empty [cosmology] table: the default
         spec = DEFAULT_COSMOLOGY
     if isinstance(spec, _cosmo.Cosmology):
         return spec

@@ -35,7 +35,7 @@ def run(args):
     from ...report.null_figures import challenge_figure
     from ...report.null_markdown import challenge_markdown
 
-    validate.number(args.claim, "--claim", low=-10, high=10)
+    validate.number(args.claim, "--claim")  # its range is the run's prior on k (checked with the data)
     check_alpha(args.alpha)
     config, data = load_checked_run(args)
     result = challenge_claim(config, data, args.claim, replicas=args.replicas, mode=args.mode,
