@@ -11,7 +11,7 @@ from astropy.table import Table
 
 from cosmogrow.cli.dispatch import main
 
-from mocks import mock_catalog, write_csv
+from mocks import mock_catalog, write_samples
 
 GOOD = """
 [[sample]]
@@ -28,8 +28,7 @@ def folder(tmp_path_factory):
     """Two small catalogues and the files the corpus cases need."""
     folder = tmp_path_factory.mktemp("inputs")
     cat = mock_catalog(np.random.default_rng(3), 1.0, samples=((0.02, 40, "dynamical"), (1.2, 40, "virial")))
-    write_csv(cat.subset(cat.sample == "S0"), folder / "local.csv")
-    write_csv(cat.subset(cat.sample == "S1"), folder / "far.csv")
+    write_samples(cat, folder, ("local.csv", "far.csv"))
     frame = pd.read_csv(folder / "local.csv")
     base = Table.from_pandas(frame)
     table = base.copy()

@@ -16,7 +16,7 @@ import pytest
 
 from cosmogrow.cli.dispatch import main
 
-from mocks import mock_catalog, write_csv
+from mocks import mock_catalog, write_csv, write_samples
 
 ROOT = Path(__file__).resolve().parent.parent
 
@@ -25,8 +25,7 @@ ROOT = Path(__file__).resolve().parent.parent
 def cats(tmp_path_factory):
     folder = tmp_path_factory.mktemp("resume")
     cat = mock_catalog(np.random.default_rng(11), 1.0, samples=((0.02, 50, "dynamical"), (1.2, 50, "dynamical")))
-    write_csv(cat.subset(cat.sample == "S0"), folder / "local.csv")
-    write_csv(cat.subset(cat.sample == "S1"), folder / "far.csv")
+    write_samples(cat, folder, ("local.csv", "far.csv"))
     other = mock_catalog(np.random.default_rng(12), 0.0, samples=((1.2, 50, "dynamical"),))
     write_csv(other, folder / "other.csv")
     return folder
