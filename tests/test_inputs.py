@@ -241,3 +241,44 @@ def test_remnants_help_shows_a_percent_sign(capsys):
         main(["remnants", "--help"])
     text = capsys.readouterr().out
     assert "95 %" in text and "%%" not in text
+
+
+def test_failed_mocks_give_exit_3_with_their_count(folder, tmp_path, capsys, monkeypatch):
+    """The campaign is replaced by one whose second mock failed: the command counts it."""
+    import cosmogrow.cli.commands.inject as inject
+    from cosmogrow.campaigns.runner import CampaignResult
+
+    class Serial:
+        description = "in-process"
+
+        def close(self):
+            pass
+
+    def fake_campaign(context, out, executor, on_progress=None):
+        rows = pd.DataFrame({"k_true": [0.0, 0.0], "error": ["", "ValueError: no finite MAP"]})
+        return CampaignResult(results=rows, summary={"recovery": {}, "sbc": {}})
+
+    monkeypatch.setattr(inject, "run_campaign", fake_campaign)
+    monkeypatch.setattr(inject, "make_executor", lambda **kwargs: Serial())
+    monkeypatch.setattr(inject, "write_campaign_outputs", lambda stage, result: (stage / "summary.json").write_text("{}"))
+    toml(folder, "run_design.toml", GOOD)
+    campaign = toml(folder, "campaign_ok.toml", 'seed = 1\ndesign = "run_design.toml"\n[grid]\nk = [0]\n'
+                                                'realisations = 2\n')
+    code, err = run_cli(["inject", "--config", campaign, "--out", tmp_path / "c", "--quiet"], capsys)
+    assert code == 3
+    assert err == [f"cosmogrow inject: 1 of 2 mock fits failed (see the 'error' column of "
+                   f"{tmp_path / 'c' / 'results.parquet'})"]
+
+
+def test_library_runtime_warnings_do_not_reach_the_user(capsys, monkeypatch):
+    import warnings
+
+    import cosmogrow.cli.commands.budget as budget
+
+    def noisy(args):
+        warnings.warn("overflow encountered in power", RuntimeWarning)
+        return 0
+
+    monkeypatch.setattr(budget, "run", noisy)
+    code, err = run_cli(["budget", "--k", "1", "--out", "unused"], capsys)
+    assert code == 0 and err == []
