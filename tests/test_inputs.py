@@ -280,5 +280,7 @@ def test_library_runtime_warnings_do_not_reach_the_user(capsys, monkeypatch):
         return 0
 
     monkeypatch.setattr(budget, "run", noisy)
-    code, err = run_cli(["budget", "--k", "1", "--out", "unused"], capsys)
-    assert code == 0 and err == []
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        code, err = run_cli(["budget", "--k", "1", "--out", "unused"], capsys)
+    assert code == 0 and err == [] and caught == []
