@@ -56,9 +56,13 @@ def check_out_dir(out_dir, marker, *, force=False, resume=False):
             raise ConfigError(f"--out {out_dir}: holds results of an earlier run; give --force to "
                               f"replace them, or choose another folder")
         return True
+    ancestor = out_dir.parent
+    while not ancestor.exists() and ancestor != ancestor.parent:
+        ancestor = ancestor.parent
     try:
-        out_dir.parent.mkdir(parents=True, exist_ok=True)
-        os.rmdir(tempfile.mkdtemp(prefix=stage_prefix(out_dir), dir=out_dir.parent))
+        if not ancestor.is_dir():
+            raise NotADirectoryError(f"{ancestor} is a file")
+        os.rmdir(tempfile.mkdtemp(prefix=stage_prefix(out_dir), dir=ancestor))  # a write test only
     except OSError as exc:
         raise ConfigError(f"--out {out_dir}: cannot write there ({exc.strerror or exc})") from None
     return False
@@ -74,8 +78,12 @@ def staged_directory(out_dir, *, keep=()):
     the staging folder is removed and `out_dir` is left as it was.
     """
     out_dir = Path(out_dir)
-    out_dir.parent.mkdir(parents=True, exist_ok=True)
-    tmp = Path(tempfile.mkdtemp(prefix=stage_prefix(out_dir), dir=out_dir.parent))
+    made = _make_parents(out_dir.parent)
+    try:
+        tmp = Path(tempfile.mkdtemp(prefix=stage_prefix(out_dir), dir=out_dir.parent))
+    except BaseException:
+        _remove_empty(made)
+        raise
     try:
         yield tmp
         for name in keep:
@@ -84,7 +92,25 @@ def staged_directory(out_dir, *, keep=()):
         _swap(tmp, out_dir)
     except BaseException:
         shutil.rmtree(tmp, ignore_errors=True)
+        _remove_empty(made)
         raise
+
+
+def _make_parents(folder):
+    """Create `folder` and its missing parents; returns those created, deepest first."""
+    missing = []
+    while not folder.exists() and folder != folder.parent:
+        missing.append(folder)
+        folder = folder.parent
+    for path in reversed(missing):
+        path.mkdir(exist_ok=True)
+    return missing
+
+
+def _remove_empty(folders):
+    for path in folders:  # deepest first
+        with contextlib.suppress(OSError):
+            path.rmdir()
 
 
 def _swap(stage, out_dir):

@@ -160,13 +160,13 @@ CATALOGUE_CASES = [
 @pytest.mark.parametrize("name, words", [case[1:] for case in CATALOGUE_CASES],
                          ids=[case[0] for case in CATALOGUE_CASES])
 def test_bad_catalogue_is_one_line_naming_file_and_column(folder, tmp_path, capsys, name, words):
-    out = tmp_path / "out"
+    out = tmp_path / "new" / "out"
     code, err = run_cli(["fit", folder / name, folder / "far.csv", "--out", out, "--quiet"], capsys)
     assert code == 2 and len(err) == 1, err
     assert name in err[0]
     for word in words:
         assert word in err[0], (word, err[0])
-    assert not out.exists() and not list(tmp_path.glob(".out*"))
+    assert list(tmp_path.iterdir()) == []  # not even the parent folder of --out
 
 
 COMMAND_CASES = [

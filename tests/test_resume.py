@@ -147,3 +147,22 @@ def test_kill_9_then_resume_matches_an_uninterrupted_run(cats, tmp_path):
     assert a["convergence"]["n_steps"] == b["convergence"]["n_steps"] > steps
     assert a["k"] == b["k"] and a["parameters"] == b["parameters"]
     assert not list(tmp_path.glob(".killed.*"))  # the killed run's staging folder is gone
+
+
+@pytest.mark.slow
+def test_sigterm_removes_the_staging_folder(cats, tmp_path):
+    config = tmp_path / "long.toml"
+    config.write_text("seed = 13\n[sampler]\nautocorr_factor = 300\ncheck_every = 50\n")
+    argv = [sys.executable, "-m", "cosmogrow.cli", "fit", str(cats / "local.csv"), str(cats / "far.csv"),
+            "--config", str(config), "--quiet", "--out", str(tmp_path / "res")]
+    process = subprocess.Popen(argv, env={**os.environ, "PYTHONPATH": str(ROOT)},
+                               stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+    deadline = time.monotonic() + 120
+    while time.monotonic() < deadline and process.poll() is None:
+        if any(_chain_steps(p) > 0 for p in tmp_path.glob(".res.stage-*/chain.h5")):
+            break
+        time.sleep(0.05)
+    assert process.poll() is None, "the fit ended before it could be stopped"
+    process.terminate()
+    assert process.wait(timeout=60) == 128 + signal.SIGTERM
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["long.toml"]

@@ -7,6 +7,7 @@ from pathlib import Path
 import numpy as np
 
 from ...config import read_run_config
+from ...errors import CosmogrowError
 from ...inference.fit import load_data, run_fit
 from ...inference.resume import chain_attrs, find_resumable, fit_fingerprint, stored_seed
 from ...outputs import STAGE_TAG, staged_directory, write_json
@@ -65,6 +66,9 @@ def run(args):
             result = run_fit(config, data, chain_path=stage / "chain.h5", selection_aware=not args.plain,
                              on_check=progress_printer(args.quiet),
                              chain_attrs=chain_attrs(fingerprint, config.seed))
+            if not np.isfinite(result.summary["k"]["median"]):
+                raise CosmogrowError("the fit gave a non-finite k; nothing written (check the inputs' "
+                                     "ranges and the [priors] table)")
             if args.resume and _worse_than_before(out, result):
                 raise _KeepEarlier
             write_fit_outputs(stage, config, data, result)
