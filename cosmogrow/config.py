@@ -161,8 +161,9 @@ def read_run_config(path=None):
 def parse_run_config(raw, *, base_dir=Path("."), source=None):
     """Validate a parsed TOML mapping and build a RunConfig; every error names `source`.
 
-    The cosmology and every sample's selection are built once here, so that a bad value stops the
-    run before any data are read.
+    Every value is checked for its type and range here, and the cosmology is built once, so that
+    a bad value stops the run before any data are read; the selection tables and the names that
+    must exist in the data are checked by `inference.fit.load_data` (`check_against_data`).
     """
     from .background import get_cosmology
 

@@ -56,9 +56,7 @@ def run(args):
     config = resolve_seed(config, args.seed)
     data = load_data(config)
     fingerprint = fit_fingerprint(config, data, selection_aware=not args.plain)
-    previous = find_resumable(out, fingerprint, config.sampler.max_steps, config.source) if args.resume else None
-    if args.resume and previous is None and not args.quiet:
-        print(f"cosmogrow fit: no chain of this run to continue in {out}; starting a new one", file=sys.stderr)
+    previous = _chain_to_continue(args, out, config, fingerprint)
     try:
         with staged_directory(out) as stage:
             if previous is not None:
@@ -81,6 +79,16 @@ def run(args):
     print((out / "summary.md").read_text())
     print(f"results written to {out}/")
     return 0 if result.chain.converged else EXIT_NOT_CONVERGED
+
+
+def _chain_to_continue(args, out, config, fingerprint):
+    """With --resume, the chain file to continue (inference.resume.find_resumable), else None."""
+    if not args.resume:
+        return None
+    previous = find_resumable(out, fingerprint, config.sampler.max_steps, config.source)
+    if previous is None and not args.quiet:
+        print(f"cosmogrow fit: no chain of this run to continue in {out}; starting a new one", file=sys.stderr)
+    return previous
 
 
 class _KeepEarlier(Exception):
