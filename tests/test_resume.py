@@ -51,6 +51,8 @@ def test_second_run_refused_then_force_replaces_the_folder_whole(cats, tmp_path,
     code, err = fit(cats, out, "--seed", "2", capsys=capsys)
     assert code == 2 and len(err) == 1 and "--force" in err[0] and str(out) in err[0]
     (out / "left_over.txt").write_text("from before\n")
+    (tmp_path / ".res.stage-killed").mkdir()  # what a killed fit leaves beside --out
+    (tmp_path / ".res.stage-killed" / "chain.h5").write_bytes(b"partial")
     assert fit(cats, out, "--seed", "3", "--force", capsys=capsys)[0] == 0
     assert not (out / "left_over.txt").exists() and summary(out)["seed"] == 3
     assert siblings(out) == []

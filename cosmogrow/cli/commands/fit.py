@@ -10,7 +10,7 @@ from ...config import read_run_config
 from ...errors import CosmogrowError
 from ...inference.fit import load_data, run_fit
 from ...inference.resume import chain_attrs, find_resumable, fit_fingerprint, stored_seed
-from ...outputs import STAGE_TAG, staged_directory, write_json
+from ...outputs import staged_directory, stale_stages, write_json
 from ._common import add_seed_option, claim_out, resolve_seed
 
 EXIT_NOT_CONVERGED = 3
@@ -74,8 +74,10 @@ def run(args):
         print(f"cosmogrow fit: the continued chain did not converge but the results in {out} did; "
               "they are kept", file=sys.stderr)
         return EXIT_NOT_CONVERGED
-    if previous is not None and STAGE_TAG in previous.parent.name:
-        shutil.rmtree(previous.parent, ignore_errors=True)  # the staging folder of a killed run
+    if args.force or previous is not None:  # staging folders of killed runs: replaced or continued
+        for stage in stale_stages(out):
+            if (stage / "chain.h5").exists():
+                shutil.rmtree(stage, ignore_errors=True)
     print((out / "summary.md").read_text())
     print(f"results written to {out}/")
     return 0 if result.chain.converged else EXIT_NOT_CONVERGED
