@@ -8,6 +8,7 @@ import numpy as np
 from astropy import cosmology as _cosmo
 from astropy import units as u
 
+from . import validate
 from .errors import ConfigError
 
 DEFAULT_COSMOLOGY = "Planck18"
@@ -34,13 +35,13 @@ def get_cosmology(spec=None):
     Parameters
     ----------
     spec : None, str, dict or astropy Cosmology
-        None gives Planck18. A string names a realisation. A dict either has ``name`` (a
+        None (or an empty table) gives Planck18. A string names a realisation. A dict either has ``name`` (a
         realisation) or ``model`` (one of LambdaCDM, FlatLambdaCDM, wCDM, FlatwCDM, w0waCDM,
         Flatw0waCDM) with its parameters: H0 in km/s/Mpc, Om0, Ode0, w0, wa, and optionally
         Tcmb0 (K), Neff, Ob0, m_nu (eV). Without ``model``, a dict with Ode0 is LambdaCDM
         (w0waCDM when w0 or wa is given), without Ode0 it is flat.
     """
-    if spec is None:
+    if spec is None or (isinstance(spec, dict) and not spec):  # an empty [cosmology] table: the default
         spec = DEFAULT_COSMOLOGY
     if isinstance(spec, _cosmo.Cosmology):
         return spec
@@ -77,19 +78,52 @@ def _parametric(spec):
     unknown = set(spec) - set(required) - set(_OPTIONAL)
     if unknown:
         raise ConfigError(f"cosmology: unknown parameter(s) {sorted(unknown)} for model {model}")
-    kwargs = {}
-    for key, value in spec.items():
-        if key == "m_nu":
-            value = np.atleast_1d(value) * u.eV
-        elif key == "H0":
-            value = float(value) * u.km / u.s / u.Mpc
-        elif key == "Tcmb0":
-            value = float(value) * u.K
-        kwargs[key] = value
+    kwargs = {key: _parameter(key, value) for key, value in spec.items()}
+    if model.startswith("Flat") and kwargs["Om0"] > 1:
+        raise ConfigError(f"cosmology.Om0: expected <= 1 for a flat model (Ode0 = 1 - Om0 >= 0), "
+                          f"got {spec['Om0']!r}")
+    if "Ob0" in kwargs and kwargs["Ob0"] > kwargs["Om0"]:
+        raise ConfigError(f"cosmology.Ob0: expected <= Om0 ({spec['Om0']!r}), got {spec['Ob0']!r}")
     try:
-        return getattr(_cosmo, model)(**kwargs)
+        cosmo = getattr(_cosmo, model)(**kwargs)
     except (TypeError, ValueError) as exc:
         raise ConfigError(f"cosmology: {exc}") from None
+    _check_expansion(cosmo, model)
+    return cosmo
+
+
+# Physical ranges of the parameters: (low, low excluded, high); None = unbounded.
+_RANGES = {"H0": (0.0, True, None), "Om0": (0.0, False, None), "Ode0": (0.0, False, None),
+           "Tcmb0": (0.0, False, None), "Neff": (0.0, False, None), "Ob0": (0.0, False, None),
+           "w0": (None, False, None), "wa": (None, False, None)}
+_UNITS = {"H0": u.km / u.s / u.Mpc, "Tcmb0": u.K}
+
+
+def _parameter(key, value):
+    """One cosmological parameter: a finite number in its physical range, with its unit."""
+    if key == "m_nu":
+        values = value if isinstance(value, list) else [value]
+        for item in values:
+            validate.number(item, "cosmology.m_nu", low=0, unit="eV")
+        return np.asarray(values, dtype=float) * u.eV
+    low, low_open, high = _RANGES[key]
+    number = validate.number(value, f"cosmology.{key}", low=low, low_open=low_open, high=high)
+    return number * _UNITS[key] if key in _UNITS else number
+
+
+def _check_expansion(cosmo, model):
+    """H(z)^2 > 0 from today back to z = 1e4: no bounce or turnaround, so ages and distances exist
+    (a closed model with too much dark energy fails here; de Sitter and Milne pass)."""
+    import warnings
+
+    z = np.concatenate([[0.0], np.geomspace(1e-3, 1e4, 400)])
+    with warnings.catch_warnings(), np.errstate(all="ignore"):
+        warnings.simplefilter("ignore")
+        e2 = np.asarray(cosmo.efunc(z), dtype=complex) ** 2
+    if not (np.all(e2.real > 0) and np.all(np.abs(e2.imag) < 1e-12)):
+        raise ConfigError(f"cosmology: the {model} model with Om0 = {cosmo.Om0:g}, Ode0 = {cosmo.Ode0:g} "
+                          f"has no expansion history back to z = 1e4 (H(z)^2 <= 0 somewhere): "
+                          f"ages and distances do not exist")
 
 
 def scale_factor(z):

@@ -29,11 +29,14 @@ A run configuration looks like::
     selection = { kind = "mass_cut", log_mbh_min = 8.4, on = "observed" }
 """
 
+import math
 import tomllib
 from dataclasses import dataclass, field, replace
 from pathlib import Path
 
+from . import validate
 from .errors import ConfigError
+from .validate import in_file
 
 FORMS = ("ratio", "relation")
 SCATTER_MODES = ("shared", "per_sample")
@@ -93,7 +96,7 @@ class RunConfig:
     sampler: SamplerOptions = SamplerOptions()
     cosmology: object = None
     seed: int | None = None
-    source: str = "<defaults>"
+    source: str | None = None          # the TOML file, None without one
     raw: dict = field(default_factory=dict)
 
     def with_overrides(self, *, form=None, seed=None, catalogs=None):
@@ -104,10 +107,10 @@ class RunConfig:
         """
         config = self
         if form is not None:
-            _check_choice("model.form", form, FORMS, self.source)
+            validate.choice(form, "--form", FORMS)
             config = replace(config, model=replace(config.model, form=form))
         if seed is not None:
-            config = replace(config, seed=int(seed))
+            config = replace(config, seed=validate.seed(seed, "--seed"))
         if catalogs:
             known = {spec.path.resolve(): spec for spec in config.samples}
             samples = tuple(known.get(Path(p).resolve(), SampleSpec(path=Path(p))) for p in catalogs)
@@ -127,12 +130,23 @@ class RunConfig:
 
 
 def load_toml(path):
-    """Parse a TOML file; a syntax error becomes a one-line ConfigError naming the file."""
+    """Parse a TOML file (UTF-8, a byte-order mark allowed); every problem is one ConfigError naming it."""
     path = Path(path)
-    if not path.is_file():
+    if path.is_dir():
+        raise ConfigError(f"{path}: is a directory; expected a TOML configuration file")
+    if not path.exists():
         raise ConfigError(f"{path}: configuration file not found")
     try:
-        return tomllib.loads(path.read_text())
+        data = path.read_bytes()
+    except OSError as exc:
+        raise ConfigError(f"{path}: cannot read the configuration file ({exc.strerror or exc})") from None
+    try:
+        text = data.decode("utf-8-sig")
+    except UnicodeDecodeError as exc:
+        raise ConfigError(f"{path}: expected UTF-8 text; byte 0x{data[exc.start]:02x} at offset "
+                          f"{exc.start} is not (binary file, or another encoding such as Latin-1?)") from None
+    try:
+        return tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise ConfigError(f"{path}: invalid TOML: {exc}") from None
 
@@ -144,93 +158,144 @@ def read_run_config(path=None):
     return parse_run_config(load_toml(path), base_dir=Path(path).parent, source=str(path))
 
 
-def parse_run_config(raw, *, base_dir=Path("."), source="<config>"):
-    """Validate a parsed TOML mapping and build a RunConfig."""
-    _check_keys(raw, _TOP_KEYS, "", source)
-    model = _parse_model(raw.get("model", {}), source)
-    sampler = _parse_sampler(raw.get("sampler", {}), source)
-    priors = _parse_priors(raw.get("priors", {}), source)
-    samples = tuple(_parse_sample(entry, i, base_dir, source) for i, entry in enumerate(raw.get("sample", [])))
-    seed = raw.get("seed")
-    if seed is not None and (not isinstance(seed, int) or seed < 0):
-        raise ConfigError(f"{source}: seed: expected a non-negative integer, got {seed!r}")
-    cosmology = raw.get("cosmology")
+def parse_run_config(raw, *, base_dir=Path("."), source=None):
+    """Validate a parsed TOML mapping and build a RunConfig; every error names `source`.
+
+    Every value is checked for its type and range here, and the cosmology is built once, so that
+    a bad value stops the run before any data are read; the selection tables and the names that
+    must exist in the data are checked by `inference.fit.load_data` (`check_against_data`).
+    """
+    from .background import get_cosmology
+
+    with in_file(source):
+        _check_keys(raw, _TOP_KEYS, "")
+        model = _parse_model(raw.get("model", {}))
+        sampler = _parse_sampler(raw.get("sampler", {}))
+        priors = _parse_priors(validate.table(raw.get("priors", {}), "priors"))
+        entries = raw.get("sample", [])
+        if not isinstance(entries, list):
+            raise ConfigError(f"sample: expected [[sample]] tables, got {entries!r}")
+        samples = tuple(_parse_sample(entry, i, base_dir) for i, entry in enumerate(entries))
+        _check_unique_names(samples)
+        seed = raw.get("seed")
+        if seed is not None:
+            validate.seed(seed, "seed")
+        cosmology = raw.get("cosmology")
+        get_cosmology(cosmology)
+        validate.table(raw.get("crosscheck", {}), "crosscheck")
     return RunConfig(samples=samples, model=model, priors=priors, sampler=sampler,
                      cosmology=cosmology, seed=seed, source=source, raw=raw)
 
 
-def _parse_model(table, source):
-    _check_keys(table, _MODEL_KEYS, "model.", source)
+def check_against_data(config, methods, samples):
+    """Names the configuration gives must exist in the data: the zero-point method, the methods of
+    an offset-width table, the cross-check's reference sample. ConfigError naming the file."""
+    with in_file(config.source):
+        zero_point = config.model.zero_point_method
+        if zero_point is not None and zero_point not in methods:
+            raise ConfigError(f"model.zero_point_method: {zero_point!r} is not a method of the data; "
+                              f"expected one of {', '.join(methods)}")
+        widths = config.model.method_offset_width
+        for name in widths if isinstance(widths, dict) else ():
+            if name != "default" and name not in methods:
+                raise ConfigError(f"model.method_offset_width.{name}: {name!r} is not a method of the "
+                                  f"data; expected some of default, {', '.join(methods)}")
+        reference = config.raw.get("crosscheck", {}).get("reference")
+        if isinstance(reference, str) and reference not in samples:
+            raise ConfigError(f"crosscheck.reference: {reference!r} is not a sample of the data; "
+                              f"expected one of {', '.join(samples)}")
+
+
+def _parse_model(table):
+    _check_keys(table, _MODEL_KEYS, "model.")
     options = ModelOptions(**table)
-    _check_choice("model.form", options.form, FORMS, source)
-    _check_choice("model.scatter", options.scatter, SCATTER_MODES, source)
-    _check_choice("model.host_errors", options.host_errors, HOST_ERROR_MODES, source)
-    for key in ("z_ref", "log_mstar_pivot", "host_growth"):
-        _check_number(f"model.{key}", getattr(options, key), source)
-    if options.z_ref < 0:
-        raise ConfigError(f"{source}: model.z_ref: expected >= 0, got {options.z_ref!r}")
+    validate.choice(options.form, "model.form", FORMS)
+    validate.choice(options.scatter, "model.scatter", SCATTER_MODES)
+    validate.choice(options.host_errors, "model.host_errors", HOST_ERROR_MODES)
+    validate.number(options.z_ref, "model.z_ref", low=0, high=20)
+    validate.number(options.log_mstar_pivot, "model.log_mstar_pivot", low=0, high=13, unit="(log10 Msun)")
+    validate.number(options.host_growth, "model.host_growth", low=-10, high=10)
+    validate.boolean(options.outliers, "model.outliers")
+    if options.zero_point_method is not None:
+        validate.text(options.zero_point_method, "model.zero_point_method")
     widths = options.method_offset_width
-    values = widths.values() if isinstance(widths, dict) else [widths]
-    for value in values:
-        _check_number("model.method_offset_width", value, source)
-        if value <= 0:
-            raise ConfigError(f"{source}: model.method_offset_width: expected > 0 dex, got {value!r}")
+    pairs = ([(f"model.method_offset_width.{name}", value) for name, value in widths.items()]
+             if isinstance(widths, dict) else [("model.method_offset_width", widths)])
+    for key, value in pairs:
+        validate.number(value, key, low=0, low_open=True, unit="dex")
     return options
 
 
-def _parse_sampler(table, source):
-    _check_keys(table, _SAMPLER_KEYS, "sampler.", source)
+def _parse_sampler(table):
+    _check_keys(table, _SAMPLER_KEYS, "sampler.")
     options = SamplerOptions(**table)
-    if not isinstance(options.walkers, int) or options.walkers < 0:
-        raise ConfigError(f"{source}: sampler.walkers: expected an integer >= 0, got {options.walkers!r}")
-    if not isinstance(options.max_steps, int) or options.max_steps < 100:
-        raise ConfigError(f"{source}: sampler.max_steps: expected an integer >= 100, got {options.max_steps!r}")
-    _check_number("sampler.autocorr_factor", options.autocorr_factor, source)
+    validate.integer(options.walkers, "sampler.walkers", low=0)
+    validate.integer(options.max_steps, "sampler.max_steps", low=100)
+    validate.number(options.autocorr_factor, "sampler.autocorr_factor", low=1)
+    validate.integer(options.check_every, "sampler.check_every", low=1)
+    validate.boolean(options.progress, "sampler.progress")
     return options
 
 
-def _parse_priors(table, source):
+# Physical limits of prior ranges (a scatter is never negative, a fraction lies in [0, 1]).
+_PRIOR_LIMITS = {"sigma_int": (0.0, None), "sigma_out": (0.0, None), "f_out": (0.0, 1.0)}
+
+
+def _parse_priors(table):
     priors = {}
     for name, bounds in table.items():
         if (not isinstance(bounds, list) or len(bounds) != 2
-                or not all(isinstance(b, (int, float)) for b in bounds) or not bounds[0] < bounds[1]):
-            raise ConfigError(f"{source}: priors.{name}: expected [low, high] with low < high, got {bounds!r}")
+                or not all(validate.is_number(b) and math.isfinite(b) for b in bounds)
+                or not bounds[0] < bounds[1]):
+            raise ConfigError(f"priors.{name}: expected [low, high], finite numbers with low < high, "
+                              f"got {bounds!r}")
+        low, high = _PRIOR_LIMITS.get(name, (None, None))
+        if (low is not None and bounds[0] < low) or (high is not None and bounds[1] > high):
+            raise ConfigError(f"priors.{name}: expected a range within [{low:g}, "
+                              f"{'inf' if high is None else f'{high:g}'}], got {bounds!r}")
         priors[name] = (float(bounds[0]), float(bounds[1]))
     return priors
 
 
-def _parse_sample(entry, index, base_dir, source):
+def _parse_sample(entry, index, base_dir):
     where = f"sample[{index + 1}]"
-    if not isinstance(entry, dict):
-        raise ConfigError(f"{source}: {where}: expected a table, got {entry!r}")
-    _check_keys(entry, _SAMPLE_KEYS, f"{where}.", source)
+    validate.table(entry, where)
+    _check_keys(entry, _SAMPLE_KEYS, f"{where}.")
     if "path" not in entry:
-        raise ConfigError(f"{source}: {where}: missing key 'path'")
-    path = Path(entry["path"])
+        raise ConfigError(f"{where}: missing key 'path'")
+    path = Path(validate.text(entry["path"], f"{where}.path"))
     if not path.is_absolute():
         path = Path(base_dir) / path
+    name = entry.get("name")
+    if name is not None:
+        validate.text(name, f"{where}.name")
+    method = entry.get("method")
+    if method is not None:
+        validate.text(method, f"{where}.method")
+    columns = validate.table(entry.get("columns", {}), f"{where}.columns")
+    for source, target in columns.items():
+        validate.text(target, f"{where}.columns.{source}")
     selection = entry.get("selection", ())
     if isinstance(selection, dict):
         selection = (selection,)
-    return SampleSpec(path=path, name=entry.get("name"), columns=dict(entry.get("columns", {})),
-                      method=entry.get("method"), selection=tuple(selection),
-                      drop_invalid=bool(entry.get("drop_invalid", False)))
+    if not isinstance(selection, (list, tuple)):
+        raise ConfigError(f"{where}.selection: expected a table or a list of tables, got {selection!r}")
+    for i, model in enumerate(selection):
+        validate.table(model, f"{where}.selection[{i + 1}]")
+    drop_invalid = validate.boolean(entry.get("drop_invalid", False), f"{where}.drop_invalid")
+    return SampleSpec(path=path, name=name, columns=dict(columns), method=method,
+                      selection=tuple(selection), drop_invalid=drop_invalid)
 
 
-def _check_keys(table, allowed, prefix, source):
-    if not isinstance(table, dict):
-        raise ConfigError(f"{source}: {prefix.rstrip('.')}: expected a table, got {table!r}")
+def _check_unique_names(samples):
+    named = [spec.name for spec in samples if spec.name is not None]
+    doubled = sorted({name for name in named if named.count(name) > 1})
+    if doubled:
+        raise ConfigError(f"sample: two [[sample]] tables are named {doubled[0]!r}; expected distinct names")
+
+
+def _check_keys(table, allowed, prefix):
+    validate.table(table, prefix.rstrip(".") or "configuration")
     unknown = sorted(set(table) - set(allowed))
     if unknown:
-        raise ConfigError(f"{source}: unknown key '{prefix}{unknown[0]}'; expected one of "
-                          f"{', '.join(sorted(allowed))}")
-
-
-def _check_choice(key, value, choices, source):
-    if value not in choices:
-        raise ConfigError(f"{source}: {key}: expected one of {', '.join(choices)}, got {value!r}")
-
-
-def _check_number(key, value, source):
-    if isinstance(value, bool) or not isinstance(value, (int, float)):
-        raise ConfigError(f"{source}: {key}: expected a number, got {value!r}")
+        raise ConfigError(f"unknown key '{prefix}{unknown[0]}'; expected one of {', '.join(sorted(allowed))}")

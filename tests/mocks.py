@@ -32,3 +32,8 @@ def mock_catalog(rng, k, *, beta=1.0, samples=((0.02, 60, "dynamical"), (1.0, 60
 def write_csv(catalog, path):
     catalog.to_dataframe().to_csv(path, index=False)
     return path
+
+
+def write_samples(catalog, folder, names):
+    """Write sample S<j> of `catalog` to folder/names[j] (CSV); returns the paths."""
+    return [write_csv(catalog.subset(catalog.sample == f"S{j}"), folder / name) for j, name in enumerate(names)]

@@ -11,7 +11,7 @@ import pytest
 PACKAGE = Path(__file__).resolve().parent.parent / "cosmogrow"
 
 LAYERS = {
-    0: {"__init__", "errors", "seeding", "interpolation", "outputs"},
+    0: {"__init__", "errors", "seeding", "interpolation", "outputs", "validate"},
     1: {"background", "config"},
     2: {"data"},
     3: {"selection", "consequences"},

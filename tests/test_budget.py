@@ -284,8 +284,8 @@ def test_cli_budget_posterior_summary(tmp_path, only_physics_commands):
      "row 2, column 'psi'"),
     (lambda d: ["--posterior", str(d / "nofit")], "not a directory"),
     (lambda d: ["--k", "3", "--eps-bh", "0.01", "--imf", "kroupa"], "not both"),
-    (lambda d: ["--k", "3", "--remnant-fraction", "2"], "remnant fraction"),
-    (lambda d: ["--k", "3", "--z-floor", "30"], "z_floor < z_max"),
+    (lambda d: ["--k", "3", "--remnant-fraction", "2"], r"--remnant-fraction: expected a finite number > 0 and <= 1"),
+    (lambda d: ["--k", "3", "--z-floor", "30"], r"--z-floor: expected below --z-max"),
     (lambda d: ["--k", "3", "--cosmology", "Planck99"], "unknown realisation 'Planck99'"),
 ])
 def test_cli_budget_bad_input_exit_2_one_line_nothing_written(tmp_path, capsys, only_physics_commands,

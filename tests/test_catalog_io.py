@@ -154,7 +154,7 @@ def test_write_unknown_extension(tmp_path):
 
 def test_missing_column(tmp_path):
     path = write_csv(tmp_path, [r.rsplit(",", 1)[0] for r in GOOD_ROWS], header=HEADER.rsplit(",", 1)[0])
-    reason = ("missing column; expected 'log_mstar_err' (or a column_map entry naming it); "
+    reason = ("missing column; expected 'log_mstar_err' (or a `columns` entry naming it); "
               "file has id, z, log_mbh, log_mbh_err, log_mstar")
     with pytest.raises(InputError, match=pinned(path, reason, column="log_mstar_err")):
         read_catalog(path)
@@ -232,13 +232,14 @@ def test_empty_id(tmp_path):
         read_catalog(path)
 
 
-def test_masked_fits_cell_counts_as_missing(tmp_path):
+def test_nan_in_fits_is_named_as_nan(tmp_path):
+    # FITS stores a masked float as NaN: the file holds a NaN, and the message says so
     table = Table.read(write_csv(tmp_path, GOOD_ROWS), format="ascii.csv")
     table["log_mbh_err"] = MaskedColumn(table["log_mbh_err"], mask=[False, False, True])
     path = tmp_path / "masked.fits"
     table.write(path)
-    with pytest.raises(InputError, match=pinned(path, "expected a value; the cell is empty", row=3,
-                                                column="log_mbh_err")):
+    with pytest.raises(InputError, match=pinned(path, "expected a finite number", row=3,
+                                                column="log_mbh_err", value=float("nan"))):
         read_catalog(path)
 
 
@@ -289,7 +290,7 @@ def test_column_map_errors_name_the_mapped_column(tmp_path):
     path = write_csv(tmp_path, [replace_cell(GOOD_ROWS[0], 1, "x")], HEADER.replace(",z,", ",redshift,"))
     with pytest.raises(InputError, match=pinned(path, "expected a number", row=1, column="redshift", value="x")):
         read_catalog(path, column_map={"redshift": "z"})
-    reason = ("missing column; column_map maps 'zz' to 'z'; "
+    reason = ("missing column; columns maps 'zz' to 'z'; "
               "file has id, redshift, log_mbh, log_mbh_err, log_mstar, log_mstar_err")
     with pytest.raises(InputError, match=pinned(path, reason, column="zz")):
         read_catalog(path, column_map={"zz": "z"})
@@ -297,7 +298,7 @@ def test_column_map_errors_name_the_mapped_column(tmp_path):
 
 def test_column_map_unknown_target(tmp_path):
     path = write_csv(tmp_path, GOOD_ROWS)
-    with pytest.raises(ConfigError, match=r"^column_map: unknown target column\(s\) 'redshift'; expected one of "
+    with pytest.raises(ConfigError, match=r"^columns: unknown target column\(s\) 'redshift'; expected one of "
                                           r"id, z, log_mbh, log_mbh_err, log_mstar, log_mstar_err, sample, "
                                           r"method, host_type, source, mbh, mbh_err, mstar, mstar_err$"):
         read_catalog(path, column_map={"z": "redshift"})
@@ -377,7 +378,7 @@ def test_log_and_linear_both_present(tmp_path):
     np.testing.assert_allclose(read_catalog(path)[0].log_mbh, [8.0, 9.0])  # the log column wins
     np.testing.assert_allclose(read_catalog(path, column_map={"M": "mbh"})[0].log_mbh, [5.0, 4.0])
     np.testing.assert_allclose(read_catalog(path, column_map={"mbh": "mbh"})[0].log_mbh, [8.0, 9.0])
-    with pytest.raises(ConfigError, match=r"^column_map: maps columns to both 'log_mbh' and 'mbh'; expected one$"):
+    with pytest.raises(ConfigError, match=r"^columns: maps columns to both 'log_mbh' and 'mbh'; expected one$"):
         read_catalog(path, column_map={"M": "mbh", "logM": "log_mbh"})
 
 

@@ -30,6 +30,7 @@ fitted with the run's own prior on k (default uniform on [-10, 10]); as long as 
 much narrower than both ranges, the ranks of a calibrated estimator are uniform.
 """
 
+import math
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -118,7 +119,7 @@ def parse_campaign_config(raw, *, base_dir=Path("."), source="<campaign>"):
     k_values = grid.get("k", list(DEFAULT_GRID))
     if (not isinstance(k_values, list) or not k_values
             or not all(_is_number(k) for k in k_values)):
-        raise ConfigError(f"{source}: grid.k: expected a non-empty list of numbers, got {k_values!r}")
+        raise ConfigError(f"{source}: grid.k: expected a non-empty list of finite numbers, got {k_values!r}")
     if len(set(k_values)) != len(k_values):
         raise ConfigError(f"{source}: grid.k: expected distinct values, got {k_values!r}")
     realisations = _integer(grid.get("realisations", DEFAULT_REALISATIONS), "grid.realisations",
@@ -197,7 +198,8 @@ def _check_seed(value, key, source):
 
 
 def _is_number(value):
-    return isinstance(value, (int, float)) and not isinstance(value, bool)
+    """A finite int or float (not a boolean)."""
+    return isinstance(value, (int, float)) and not isinstance(value, bool) and math.isfinite(value)
 
 
 def _check_keys(table, allowed, prefix, source):

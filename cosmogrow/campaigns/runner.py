@@ -27,6 +27,7 @@ from ..errors import ConfigError, CosmogrowError
 from ..inference.laplace import laplace
 from ..inference.fit import build_model, load_data
 from .journal import Journal
+from ..validate import in_file
 from ..outputs import package_versions, sha256_file
 from .mocks import (apply_overrides, design_truth, draw_replica, draw_simulated, fit_replica,
                        simulation_design)
@@ -83,8 +84,10 @@ def prepare_campaign(spec):
         sim_config = None
     else:
         run_config = read_run_config(spec.fit) if spec.fit is not None else RunConfig()
-        sim_config, data, truth = simulation_design(spec.simulation)
-    truth = apply_overrides(truth, thaw_truth(spec.truth))
+        with in_file(spec.simulation):
+            sim_config, data, truth = simulation_design(spec.simulation)
+    with in_file(spec.source):
+        truth = apply_overrides(truth, thaw_truth(spec.truth))
     truth.pop("k", None)
     selected = any(data.selections.values())
     estimators = ((AWARE, True),) if selected else ((PLAIN, False),)
@@ -212,8 +215,9 @@ def run_campaign(context, out_dir, executor, *, on_progress=None):
     if stamp_path.is_file():
         old = json.loads(stamp_path.read_text())
         if old.get("fingerprint") != stamp["fingerprint"]:
-            raise ConfigError(f"{out_dir}: holds the journal of a different campaign (seed "
-                              f"{old.get('seed')}); use another --out or remove {JOURNAL}")
+            raise ConfigError(f"{stamp_path}: {out_dir} holds the journal of a different campaign "
+                              f"(seed {old.get('seed')}); give --force to start this one afresh, or "
+                              f"another --out")
     else:
         stamp_path.write_text(json.dumps(stamp, indent=2) + "\n")
     tasks = plan_tasks(spec)

@@ -5,8 +5,12 @@ adds its parser and sets ``run`` (a function of the parsed arguments returning a
 """
 
 import argparse
+import contextlib
 import importlib
+import signal
 import sys
+import threading
+import warnings
 
 from .. import __version__
 from ..errors import CosmogrowError
@@ -16,12 +20,19 @@ EXIT_OK = 0
 EXIT_BAD_INPUT = 2
 EXIT_NOT_CONVERGED = 3
 
-COMMANDS = ("fit", "simulate", "inject", "nulltest", "challenge", "budget", "remnants", "report", "demo")
+COMMANDS = ("init", "fit", "simulate", "inject", "nulltest", "challenge", "budget", "remnants", "report", "demo")
+
+
+class OneLineParser(argparse.ArgumentParser):
+    """An argument parser whose errors are one line (and exit code 2), like every other error."""
+
+    def error(self, message):
+        self.exit(EXIT_BAD_INPUT, f"{self.prog}: error: {message} (see {self.prog} --help)\n")
 
 
 def build_parser(only=None):
     """The argument parser; with `only`, just that subcommand is imported (a faster start)."""
-    parser = argparse.ArgumentParser(
+    parser = OneLineParser(
         prog="cosmogrow",
         description="Measure and calibrate coupled black-hole growth, M_BH ∝ a^k.")
     parser.add_argument("--version", action="version", version=f"cosmogrow {__version__}")
@@ -53,13 +64,40 @@ def main(argv=None):
         return EXIT_BAD_INPUT
     args.invoke = main  # lets a command run other commands (the demo) without importing this module
     try:
-        return int(args.run(args) or EXIT_OK)
+        with _quiet_library_warnings(), _terminate_as_exception():
+            return int(args.run(args) or EXIT_OK)
     except CosmogrowError as exc:
         print(f"cosmogrow {args.command}: error: {exc}", file=sys.stderr)
         return EXIT_BAD_INPUT
     except KeyboardInterrupt:
         print(f"cosmogrow {args.command}: interrupted", file=sys.stderr)
         return 130
+
+
+@contextlib.contextmanager
+def _quiet_library_warnings():
+    """numpy/scipy RuntimeWarnings (overflow, invalid value) are not for the user: inputs are
+    validated up front and non-finite results are reported as such."""
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)
+        yield
+
+
+@contextlib.contextmanager
+def _terminate_as_exception():
+    """SIGTERM raises SystemExit(143), so staging folders are removed as on any other failure."""
+    if threading.current_thread() is not threading.main_thread():
+        yield
+        return
+
+    def terminate(signum, frame):
+        raise SystemExit(128 + signum)
+
+    previous = signal.signal(signal.SIGTERM, terminate)
+    try:
+        yield
+    finally:
+        signal.signal(signal.SIGTERM, previous)
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -69,9 +69,17 @@ class RemnantCatalog:
         return (1.0 + self.z_obs) / (1.0 + self.z_form)
 
 
+#: Redshift limits: catalogues go to z = 20 (as the black-hole catalogues); the first stars form at
+#: z of a few tens (common practice), so a formation redshift above 30 is a unit or typing error.
+Z_OBS_MAX = 20.0
+Z_FORM_MAX = 30.0
+
+
 def _read_cells(path):
     """Column names and raw cells (str, or '' when empty/masked) of a CSV or ECSV file."""
     path = Path(path)
+    if path.is_dir():
+        raise InputError(path, "is a directory; expected a CSV or ECSV file")
     if not path.is_file():
         raise InputError(path, "file not found")
     if path.suffix.lower() == ".ecsv":
@@ -90,14 +98,20 @@ def _read_cells(path):
     import pandas as pd
 
     try:
-        frame = pd.read_csv(path, dtype=str, keep_default_na=False, comment="#", skipinitialspace=True)
+        frame = pd.read_csv(path, dtype=str, keep_default_na=False, comment="#", skipinitialspace=True,
+                            encoding="utf-8-sig")
     except (pd.errors.ParserError, pd.errors.EmptyDataError, UnicodeDecodeError) as exc:
         raise InputError(path, f"cannot read as CSV ({exc})") from None
     frame.columns = [str(c).strip() for c in frame.columns]
+    if len(set(frame.columns)) != len(frame.columns) or any(c.rsplit(".", 1)[0] in frame.columns
+                                                             and c.rsplit(".", 1)[-1].isdigit()
+                                                             for c in frame.columns):
+        doubled = next(c.rsplit(".", 1)[0] for c in frame.columns if c.rsplit(".", 1)[-1].isdigit())
+        raise InputError(path, "the header names this column twice; expected each column once", column=doubled)
     return list(frame.columns), {c: [s.strip() for s in frame[c]] for c in frame.columns}, len(frame)
 
 
-def _number(path, raw, row, column, *, minimum=None, strict=False):
+def _number(path, raw, row, column, *, minimum=None, strict=False, maximum=None):
     try:
         value = float(raw)
     except ValueError:
@@ -107,6 +121,8 @@ def _number(path, raw, row, column, *, minimum=None, strict=False):
     if minimum is not None and (value <= minimum if strict else value < minimum):
         relation = ">" if strict else ">="
         raise InputError(path, f"expected a value {relation} {minimum}", row=row, column=column, value=raw)
+    if maximum is not None and value > maximum:
+        raise InputError(path, f"expected a value <= {maximum:g}", row=row, column=column, value=raw)
     return value
 
 
@@ -143,7 +159,7 @@ def read_remnants(path, cosmo):
         mass[i] = _number(path, cells["mass"][i], row, "mass", minimum=0.0, strict=True)
         mass_err[i] = _number(path, cells["mass_err"][i], row, "mass_err", minimum=0.0)
         if "z_obs" in cells and cells["z_obs"][i]:
-            z_obs[i] = _number(path, cells["z_obs"][i], row, "z_obs", minimum=0.0)
+            z_obs[i] = _number(path, cells["z_obs"][i], row, "z_obs", minimum=0.0, maximum=Z_OBS_MAX)
         given = [c for c in FORMATION_COLUMNS if cells.get(c, empty)[i]]
         if len(given) != 1:
             got = "both" if given else "neither"
@@ -151,7 +167,7 @@ def read_remnants(path, cosmo):
                              column=FORMATION_COLUMNS[0])
         origin.append(given[0])
         if given[0] == "z_form":
-            z_form[i] = _number(path, cells["z_form"][i], row, "z_form", minimum=0.0)
+            z_form[i] = _number(path, cells["z_form"][i], row, "z_form", minimum=0.0, maximum=Z_FORM_MAX)
             if z_form[i] <= z_obs[i]:
                 raise InputError(path, f"expected z_form greater than z_obs = {z_obs[i]} (a system forms "
                                        "before it is observed)", row=row, column="z_form", value=cells["z_form"][i])

@@ -1,7 +1,8 @@
 """Reading and writing catalogue files: CSV, TSV, ECSV, FITS and Parquet, validated row by row.
 
 Files are parsed by astropy.table (no hand-written parsers). The standard columns are those of
-`cosmogrow.data.catalog`; `column_map` renames a file's own names. Every bad value is reported with the
+`cosmogrow.data.catalog`; the `columns` table of a sample
+(`column_map` here) renames a file's own names. Every bad value is reported with the
 file, the 1-based data row, the column (as named in the file) and the value: missing file or column,
 unknown extension, empty cell, non-numeric, NaN/inf, z outside [0, 20], uncertainty <= 0, log mass
 outside [0, 13] (with a hint for linear masses), duplicate id. Rows are dropped only with
@@ -17,9 +18,8 @@ import pandas as pd
 from .catalog import (DEFAULT_HOST_TYPE, DEFAULT_METHOD, DEFAULT_SOURCE, OPTIONAL_LABELS, STANDARD_COLUMNS,
                       Catalog)
 from ..errors import ConfigError, InputError
+from .files import FORMATS, check_redshift_unit, check_scalar, format_of, read_table
 
-FORMATS = {".csv": "ascii.csv", ".tsv": "ascii.tab", ".tab": "ascii.tab", ".ecsv": "ascii.ecsv",
-           ".fits": "fits", ".fit": "fits", ".fits.gz": "fits", ".parquet": "parquet"}
 # Linear-mass alternatives to the log columns; they must carry an astropy mass unit.
 LINEAR_COLUMNS = {"mbh": "log_mbh", "mbh_err": "log_mbh_err",
                   "mstar": "log_mstar", "mstar_err": "log_mstar_err"}
@@ -30,50 +30,20 @@ LOG_MASS_RANGE = (0.0, 13.0)
 LINEAR_HINT = 1e3  # a "log mass" above this is almost certainly a linear mass
 
 
-def _format_of(path):
-    name = path.name.lower()
-    for suffix in sorted(FORMATS, key=len, reverse=True):
-        if name.endswith(suffix):
-            return suffix, FORMATS[suffix]
-    raise InputError(path, f"expected a file ending in one of {', '.join(FORMATS)}")
-
-
-def _read_table(path, id_name):
-    """The file as an astropy Table (bytes decoded; text ids kept as text) and the file's stem."""
-    from astropy.table import Table
-
-    suffix, fmt = _format_of(path)
-    if not path.is_file():
-        raise InputError(path, "expected an existing file; no such file")
-    kwargs = {"comment": "#"} if fmt in ("ascii.csv", "ascii.tab") else {}
-    try:
-        with warnings.catch_warnings():  # Parquet files not written by astropy lack string lengths
-            warnings.filterwarnings("ignore", message="No table::len::")
-            table = Table.read(path, format=fmt, **kwargs)
-        if kwargs and id_name in table.colnames and table[id_name].dtype.kind not in "US":
-            # numeric-looking ids ("007"): read again keeping them as text (slower pure-Python reader)
-            table = Table.read(path, format=fmt, converters={id_name: str}, **kwargs)
-    except (OSError, ValueError, TypeError, KeyError, ImportError) as exc:
-        first_line = (str(exc).strip().splitlines() or [type(exc).__name__])[0]
-        raise InputError(path, f"expected a readable {fmt} table; {first_line}") from exc
-    table.convert_bytestring_to_unicode()
-    return table, path.name[: -len(suffix)]
-
-
 def _column_names(table, column_map, path):
     """{standard or linear name: file column name} after applying `column_map` (file -> standard)."""
     column_map = dict(column_map or {})
     unknown = sorted(set(column_map.values()) - set(MAP_TARGETS))
     if unknown:
-        raise ConfigError(f"column_map: unknown target column(s) {', '.join(map(repr, unknown))}; "
+        raise ConfigError(f"columns: unknown target column(s) {', '.join(map(repr, unknown))}; "
                           f"expected one of {', '.join(MAP_TARGETS)}")
     targets = list(column_map.values())
     doubled = sorted({t for t in targets if targets.count(t) > 1})
     if doubled:
-        raise ConfigError(f"column_map: several columns map to {doubled[0]!r}; expected at most one")
+        raise ConfigError(f"columns: several columns map to {doubled[0]!r}; expected at most one")
     absent = [source for source in column_map if source not in table.colnames]
     if absent:
-        raise InputError(path, f"missing column; column_map maps {absent[0]!r} to {column_map[absent[0]]!r}; "
+        raise InputError(path, f"missing column; columns maps {absent[0]!r} to {column_map[absent[0]]!r}; "
                          f"file has {', '.join(table.colnames)}", column=absent[0])
     names = {name: name for name in table.colnames if name not in column_map}
     names.update({target: source for source, target in column_map.items()})  # mapped names win
@@ -87,11 +57,12 @@ def _resolve(table, names, name, path):
     if len(present) == 2:  # a column_map target wins over a file's own name; else the log column
         mapped = [key for key in present if names[key] != key]
         if len(mapped) == 2:
-            raise ConfigError(f"column_map: maps columns to both {name!r} and {linear!r}; expected one")
+            raise ConfigError(f"columns: maps columns to both {name!r} and {linear!r}; expected one")
         present = mapped or [name]
     if not present:
-        raise InputError(path, f"missing column; expected {name!r} (or a column_map entry naming it); "
+        raise InputError(path, f"missing column; expected {name!r} (or a `columns` entry naming it); "
                          f"file has {', '.join(table.colnames)}", column=name)
+    check_scalar(table, names[present[0]], path)
     return present[0], names[present[0]]
 
 
@@ -102,7 +73,9 @@ class _Checked:
         self.source = source
         self.raw = np.asarray(np.ma.getdata(column))
         masked = np.array(np.ma.getmaskarray(column), dtype=bool)
-        if self.raw.dtype.kind in "biuf":
+        if self.raw.dtype.kind == "b":  # True/False are not measurements
+            values, nonnumeric = np.full(len(column), np.nan), np.ones(len(column), dtype=bool)
+        elif self.raw.dtype.kind in "iuf":
             values, nonnumeric = self.raw.astype(float), np.zeros(len(column), dtype=bool)
         else:
             text = np.char.strip(self.raw.astype(str))
@@ -114,7 +87,7 @@ class _Checked:
         self.masked = masked
         self.reasons = np.full(len(values), None, dtype=object)
         self.flag(masked, "expected a value; the cell is empty")
-        self.flag(nonnumeric, "expected a number")
+        self.flag(nonnumeric, "expected a number" + (" (the column holds true/false)" if self.raw.dtype.kind == "b" else ""))
 
     def flag(self, mask, reason):
         """Record `reason` for rows in `mask` that have no earlier reason."""
@@ -175,6 +148,7 @@ def _mass_columns(table, names, quantity, path):
 def _numeric_columns(table, names, path):
     """All standard numeric columns as (standard name, _Checked), with range checks applied."""
     _, source = _resolve(table, names, "z", path)
+    check_redshift_unit(table[source], source, path)
     z = _Checked(table[source], source)
     columns = [("z", z), *_mass_columns(table, names, "mbh", path),
                *_mass_columns(table, names, "mstar", path)]
@@ -193,10 +167,11 @@ def _numeric_columns(table, names, path):
     return columns
 
 
-def _labels(table, names, name, fallback):
+def _labels(table, names, name, fallback, path=None):
     """A string column (id, sample, method, host_type, source); empty cells take `fallback`. Returns (labels, empty mask)."""
     if name not in names:
         return np.full(len(table), fallback, dtype=object), np.zeros(len(table), dtype=bool)
+    check_scalar(table, names[name], path)
     column = table[names[name]]
     labels = np.char.strip(np.asarray(np.ma.getdata(column)).astype(str)).astype(object)
     empty = np.array(np.ma.getmaskarray(column), dtype=bool) | (labels == "")
@@ -234,13 +209,13 @@ def _load(path, *, sample=None, column_map=None, drop_invalid=False, default_met
     """read_catalog, also returning the 1-based file rows of the kept objects."""
     path = Path(path)
     id_name = next((source for source, target in (column_map or {}).items() if target == "id"), "id")
-    table, stem = _read_table(path, id_name)
+    table, stem = read_table(path, id_name)
     if len(table) == 0:
         raise InputError(path, "expected at least one data row; the table is empty")
     names = _column_names(table, column_map, path)
     _resolve(table, names, "id", path)
     columns = _numeric_columns(table, names, path)
-    ids, id_empty = _labels(table, names, "id", "")
+    ids, id_empty = _labels(table, names, "id", "", path)
     problems = _problems(ids, id_empty, names["id"], columns)
     if problems and not drop_invalid:
         first = next(iter(problems.values()))
@@ -252,10 +227,10 @@ def _load(path, *, sample=None, column_map=None, drop_invalid=False, default_met
     values = {name: col.values[keep] for name, col in columns}
     catalog = Catalog.from_columns(
         ids=ids[keep], **values, files=(str(path),),
-        sample=_labels(table, names, "sample", sample if sample is not None else stem)[0][keep],
-        method=_labels(table, names, "method", default_method or DEFAULT_METHOD)[0][keep],
-        host_type=_labels(table, names, "host_type", DEFAULT_HOST_TYPE)[0][keep],
-        source=_labels(table, names, "source", DEFAULT_SOURCE)[0][keep])
+        sample=_labels(table, names, "sample", sample if sample is not None else stem, path)[0][keep],
+        method=_labels(table, names, "method", default_method or DEFAULT_METHOD, path)[0][keep],
+        host_type=_labels(table, names, "host_type", DEFAULT_HOST_TYPE, path)[0][keep],
+        source=_labels(table, names, "source", DEFAULT_SOURCE, path)[0][keep])
     return catalog, list(problems.values()), keep + 1
 
 
@@ -374,7 +349,7 @@ def write_catalog(catalog, path):
 
     path = Path(path)
     try:
-        _, fmt = _format_of(path)
+        _, fmt = format_of(path)
     except InputError as exc:
         raise ConfigError(str(exc)) from None
     labels = catalog.label_columns

@@ -9,8 +9,9 @@ import numpy as np
 
 from .. import background
 from ..data.catalog import Catalog
-from ..data.readers import read_catalogs
+from ..data.readers import MAP_TARGETS, read_catalogs
 from .crosscheck import crosscheck_options, crosscheck_warnings, run_crosscheck
+from ..config import check_against_data
 from ..errors import ConfigError
 from .laplace import find_map, laplace, start_walkers
 from ..model.hostprior import parent_host_priors
@@ -18,6 +19,7 @@ from ..model.likelihood import CoupledGrowthModel, build_design
 from ..outputs import package_versions
 from .mcmc import default_walkers, run_ensemble
 from ..seeding import make_rng
+from ..validate import in_file
 from ..selection.compiled import SelectionSet, build_selection
 from .summary import (convergence_block, degeneracy_warnings, describe_parameters,
                       describe_samples, hypothesis_tests, offset_sensitivity)
@@ -44,24 +46,34 @@ class FitResult:
 
 
 def load_data(config):
-    """Read every sample's catalogue and its selection; duplicate ids across files are an error."""
-    if not config.samples:
-        raise ConfigError(f"{config.source}: no catalogues given (list them on the command line "
-                          "or as [[sample]] tables)")
-    cosmology = background.get_cosmology(config.cosmology)
-    crosscheck_options(config.raw.get("crosscheck", {}), config.source)  # fail before the MCMC
-    entries = [(spec.path, {"sample": spec.name, "column_map": spec.columns or None,
-                            "drop_invalid": spec.drop_invalid, "default_method": spec.method})
-               for spec in config.samples]
-    catalog, files = read_catalogs(entries)
-    selections = {}
-    for spec, info in zip(config.samples, files):
-        names = info["samples"]
-        models = list(build_selection(list(spec.selection), where=f"sample '{names[0]}'"))
-        for name in names:
-            if name in selections and selections[name] != models:
-                raise ConfigError(f"sample '{name}' appears in two files with different selections")
-            selections[name] = models
+    """Read every sample's catalogue and its selection; duplicate ids across files are an error.
+
+    Configuration errors (selection, cosmology, column names, names that must match the data)
+    name the configuration file and stop the run before the MAP and the MCMC.
+    """
+    with in_file(config.source):
+        if not config.samples:
+            raise ConfigError("no catalogues given (list them on the command line or as [[sample]] tables)")
+        cosmology = background.get_cosmology(config.cosmology)
+        crosscheck_options(config.raw.get("crosscheck", {}), config.source)  # fail before the MCMC
+        built = [list(build_selection(list(spec.selection), where=f"sample[{i + 1}]"))
+                 for i, spec in enumerate(config.samples)]
+        for i, spec in enumerate(config.samples):
+            unknown = sorted(set(spec.columns.values()) - set(MAP_TARGETS))
+            if unknown:
+                raise ConfigError(f"sample[{i + 1}].columns: unknown target column {unknown[0]!r}; "
+                                  f"expected one of {', '.join(MAP_TARGETS)}")
+        entries = [(spec.path, {"sample": spec.name, "column_map": spec.columns or None,
+                                "drop_invalid": spec.drop_invalid, "default_method": spec.method})
+                   for spec in config.samples]
+        catalog, files = read_catalogs(entries)
+        check_against_data(config, catalog.method_names, catalog.sample_names)
+        selections = {}
+        for models, info in zip(built, files):
+            for name in info["samples"]:
+                if name in selections and selections[name] != models:
+                    raise ConfigError(f"sample '{name}' appears in two files with different selections")
+                selections[name] = models
     return FitData(catalog=catalog, files=files, selections=selections, cosmology=cosmology)
 
 
@@ -97,8 +109,8 @@ def build_model(config, data, *, selection_aware=True, catalog=None, selection_s
     return model
 
 
-def run_fit(config, data, *, chain_path=None, on_check=None, selection_aware=True):
-    """MAP, Laplace, MCMC and the summary of one run.
+def run_fit(config, data, *, chain_path=None, on_check=None, selection_aware=True, chain_attrs=None):
+    """MAP, Laplace, MCMC and the summary of one run (`chain_attrs`: see inference.resume).
 
     Returns
     -------
@@ -113,7 +125,7 @@ def run_fit(config, data, *, chain_path=None, on_check=None, selection_aware=Tru
     chain = run_ensemble(model.log_prob, start, max_steps=config.sampler.max_steps,
                          autocorr_factor=config.sampler.autocorr_factor,
                          check_every=config.sampler.check_every, chain_path=chain_path,
-                         seed=sampler_seed, on_check=on_check)
+                         seed=sampler_seed, on_check=on_check, chain_attrs=chain_attrs)
     summary = summarise(config, data, model, approx, chain)
     return FitResult(model=model, laplace=approx, chain=chain, summary=summary)
 

@@ -110,7 +110,7 @@ def _moves():
 
 
 def run_ensemble(log_prob, start, *, max_steps=20000, autocorr_factor=50.0, check_every=100,
-                 chain_path=None, seed=None, on_check=None):
+                 chain_path=None, seed=None, on_check=None, chain_attrs=None):
     """Sample a vectorised log posterior until converged or capped.
 
     Parameters
@@ -124,6 +124,7 @@ def run_ensemble(log_prob, start, *, max_steps=20000, autocorr_factor=50.0, chec
         resumed from its last state.
     seed : int or SeedSequence, seeds the sampler's random stream
     on_check : callable(step, tau_max, converged), optional progress hook
+    chain_attrs : dict, optional; attributes written into a new chain file (its fingerprint)
     """
     import emcee
 
@@ -139,6 +140,7 @@ def run_ensemble(log_prob, start, *, max_steps=20000, autocorr_factor=50.0, chec
             resume_from = backend.iteration
         else:
             backend.reset(n_walkers, ndim)
+            _write_attrs(chain_path, chain_attrs or {})
     sampler = emcee.EnsembleSampler(n_walkers, ndim, log_prob, vectorize=True, moves=_moves(),
                                     backend=backend)
     seq = seed if isinstance(seed, np.random.SeedSequence) else np.random.SeedSequence(seed)
@@ -168,6 +170,14 @@ def run_ensemble(log_prob, start, *, max_steps=20000, autocorr_factor=50.0, chec
     return ChainResult(samples=samples, log_prob=log_probs, tau=np.asarray(tau), n_steps=step,
                        n_walkers=n_walkers, acceptance=float(np.mean(sampler.acceptance_fraction)),
                        converged=converged, burn=burn, thin=thin)
+
+
+def _write_attrs(path, attrs):
+    import h5py
+
+    with h5py.File(path, "a") as handle:
+        for key, value in attrs.items():
+            handle.attrs[key] = value
 
 
 def _existing_iterations(backend):

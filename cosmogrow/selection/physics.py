@@ -234,7 +234,7 @@ def _build_one(table, label):
     if "kind" not in table:
         raise ConfigError(f"{label}: missing key 'kind'; expected one of {', '.join(SELECTION_KINDS)}")
     kind = table["kind"]
-    if kind not in MODELS:
+    if not isinstance(kind, str) or kind not in MODELS:
         raise ConfigError(f"{label}: unknown kind {kind!r}; expected one of {', '.join(SELECTION_KINDS)}")
     model = MODELS[kind]
     valid = [f.name for f in fields(model)]

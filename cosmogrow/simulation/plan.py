@@ -20,6 +20,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from .. import validate
 from ..background import get_cosmology
 from ..errors import ConfigError
 from .massfunction import mass_function_from_config
@@ -37,20 +38,8 @@ TRUTH_META_KEYS = ("seed", "cosmology", "mass_function", "samples", "cosmogrow_v
 
 
 def _number(value, label, *, low=None, high=None, low_open=False):
-    ok = isinstance(value, (int, float)) and not isinstance(value, bool) and np.isfinite(value)
-    if ok and low is not None:
-        ok = value > low if low_open else value >= low
-    if ok and high is not None:
-        ok = value <= high
-    if not ok:
-        bound = []
-        if low is not None:
-            bound.append(f"{'>' if low_open else '>='} {low}")
-        if high is not None:
-            bound.append(f"<= {high}")
-        raise ConfigError(f"{label}: expected a finite number{' ' + ' and '.join(bound) if bound else ''}, "
-                          f"got {value!r}")
-    return float(value)
+    """A finite number in its range (see cosmogrow.validate.number)."""
+    return validate.number(value, label, low=low, high=high, low_open=low_open)
 
 
 @dataclass(frozen=True)

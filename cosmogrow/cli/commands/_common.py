@@ -1,10 +1,43 @@
-"""Helpers shared by subcommands: reading a fit's chain of k, checking numeric options."""
+"""Helpers shared by subcommands: reading a fit's chain of k, checking numeric options, --seed,
+--out and --force."""
 
+import argparse
 from pathlib import Path
 
 import numpy as np
 
+from ... import validate
 from ...errors import ConfigError, InputError
+
+#: The file that marks a folder as holding a command's results (see outputs.check_out_dir).
+OUT_MARKERS = {"fit": "chain.h5", "simulate": "truth.json", "inject": "campaign.json",
+               "nulltest": "nulltests.json", "challenge": "challenge.json", "budget": "budget.json",
+               "remnants": "remnants.json"}
+
+
+def seed_type(text):
+    """argparse type of --seed: an integer from 0 to 2**63 - 1."""
+    try:
+        return validate.seed(int(text), "--seed")
+    except (ValueError, ConfigError):
+        raise argparse.ArgumentTypeError(f"expected an integer from 0 to 2**63 - 1, got {text!r}") from None
+
+
+def add_seed_option(parser, help_text):
+    parser.add_argument("--seed", type=seed_type, help=help_text)
+
+
+def add_force_option(parser):
+    parser.add_argument("--force", action="store_true",
+                        help="replace the results of an earlier run of this command in --out")
+
+
+def claim_out(args, command, *, resume=False):
+    """Refuse an unusable --out before any work (see outputs.check_out_dir); True when it holds
+    results of an earlier run of `command` (replaced with --force, continued with `resume`)."""
+    from ...outputs import check_out_dir
+
+    return check_out_dir(args.out, OUT_MARKERS[command], force=getattr(args, "force", False), resume=resume)
 
 SAMPLES_FILE = "samples.npz"
 
@@ -49,12 +82,26 @@ def positive(name, value, *, allow_zero=False):
     return value
 
 
+def resolve_seed(config, seed):
+    """Command-line seed, else the config's, else a fresh one (recorded in the results)."""
+    if seed is None and config.seed is None:
+        seed = int(np.random.SeedSequence().entropy % 2**32)
+    return config.with_overrides(seed=seed)
+
+
+def check_alpha(alpha):
+    """--alpha is a probability strictly between 0 and 1."""
+    if not (np.isfinite(alpha) and 0 < alpha < 1):
+        raise ConfigError(f"--alpha: expected a number between 0 and 1 (exclusive), got {alpha}")
+    return alpha
+
+
 def add_check_options(parser, *, out_default, count_option, count_default, count_help, alpha, alpha_help):
     """The options shared by the commands that fit mocks of a run's design (nulltest, challenge)."""
     parser.add_argument("--config", required=True, help="run configuration (TOML)")
     parser.add_argument("--out", default=out_default, help=f"results folder (default: {out_default})")
-    parser.add_argument("--seed", type=int,
-                        help="random seed (default: the config's, else chosen and recorded)")
+    add_seed_option(parser, "random seed (default: the config's, else chosen and recorded)")
+    add_force_option(parser)
     parser.add_argument(count_option, type=int, default=count_default,
                         help=f"{count_help} (default {count_default})")
     parser.add_argument("--mode", choices=("fast", "mcmc"), default="fast",
@@ -67,9 +114,9 @@ def load_checked_run(args):
     """The run configuration (seed resolved) and its data, for nulltest and challenge."""
     from ...config import read_run_config
     from ...inference.fit import load_data
-    from .fit import resolve_seed
 
     config = resolve_seed(read_run_config(args.config), args.seed)
+    claim_out(args, args.command)
     return config, load_data(config)
 
 

@@ -2,10 +2,16 @@
 
 import numpy as np
 
-from ... import background, outputs
+from ... import background, outputs, validate
 from ...consequences import budget, imf, sfr
 from ...errors import ConfigError
-from ._common import positive, read_k_samples
+from ._common import add_force_option, claim_out, read_k_samples
+
+#: k beyond this is outside the fit's default prior, and (a/a_f)^k overflows the formation integral.
+K_LIMIT = 10.0
+#: Omega_BH above this many times Omega_Lambda: the k is excluded by the expansion history itself.
+EXCESS_FACTOR = 100.0
+EXIT_NON_PHYSICAL = 3
 
 ASSUMPTIONS = (
     "Every stellar-remnant black hole is assumed to couple, growing as a^k from its formation on; "
@@ -49,7 +55,24 @@ def register(subparsers):
                         help="CSV with columns z, psi (Msun/yr/Mpc^3, comoving) instead of Madau & Dickinson 2014")
     parser.add_argument("--cosmology", default=None, help="astropy realisation name (default Planck18)")
     parser.add_argument("--out", required=True, metavar="DIR", help="output directory")
+    add_force_option(parser)
     parser.set_defaults(run=run)
+
+
+def _check_options(args):
+    """Every numeric option finite and in its physical range, before any work."""
+    if args.k is not None:
+        validate.number(args.k, "--k", low=-K_LIMIT, high=K_LIMIT)
+    if args.eps_bh is not None:  # black-hole mass per stellar mass formed cannot exceed the stars
+        validate.number(args.eps_bh, "--eps-bh", low=0, low_open=True, high=1)
+    if args.remnant_fraction is not None:
+        validate.number(args.remnant_fraction, "--remnant-fraction", low=0, low_open=True, high=1)
+    if args.min_progenitor is not None:
+        validate.number(args.min_progenitor, "--min-progenitor", low=0, low_open=True, unit="Msun")
+    validate.number(args.z_max, "--z-max", low=0, low_open=True, high=100)
+    validate.number(args.z_floor, "--z-floor", low=0)
+    if not args.z_floor < args.z_max:
+        raise ConfigError(f"--z-floor: expected below --z-max ({args.z_max:g}), got {args.z_floor:g}")
 
 
 def _eps_bh(args):
@@ -59,7 +82,6 @@ def _eps_bh(args):
         if any(option is not None for option in imf_options):
             raise ConfigError("--eps-bh: give eps_BH directly or the IMF options "
                               "(--imf, --min-progenitor, --remnant-fraction), not both")
-        positive("--eps-bh", args.eps_bh)
         return args.eps_bh, {"given_directly": True}
     chosen = imf.get_imf(args.imf or "salpeter")
     m_min = imf.DEFAULT_MIN_PROGENITOR if args.min_progenitor is None else args.min_progenitor
@@ -86,11 +108,15 @@ def _distribution(result, samples):
 
 
 def run(args):
-    cosmo = background.get_cosmology(args.cosmology)
+    _check_options(args)
+    with validate.in_file("--cosmology"):
+        cosmo = background.get_cosmology(args.cosmology)
     samples = read_k_samples(args.posterior) if args.posterior else None
+    if samples is not None and np.any(np.abs(samples) > K_LIMIT):
+        raise ConfigError(f"--posterior {args.posterior}: samples of k reach {np.max(np.abs(samples)):.3g}; "
+                          f"expected |k| <= {K_LIMIT:g}")
+    claim_out(args, "budget")
     k = samples if samples is not None else args.k
-    if samples is None and not np.isfinite(k):
-        raise ConfigError(f"--k: expected a finite number, got {k}")
     star_formation = sfr.get_sfr(args.sfr_table)
     eps, eps_details = _eps_bh(args)
     history = budget.formation_history(cosmo, star_formation, eps_bh=eps, z_max=args.z_max,
@@ -98,6 +124,9 @@ def run(args):
     result = budget.evaluate_budget(history, k, cosmo)
     curve = budget.budget_curve(history, k, cosmo)
     point, summaries = _distribution(result, samples)
+    if not all(np.isfinite(point[name]) for name in point):
+        raise ConfigError(f"budget: Omega_BH is not finite for these inputs ({point['omega_bh']}); "
+                          "nothing written")
     k_summary = budget.summarise_samples(samples) if samples is not None else None
     report = {
         "command": "budget",
@@ -128,6 +157,7 @@ def run(args):
             "w_eff": "-1 - (1/3) dln rho_phys / dln a = -k/3 - (formation per ln a) / (3 rho_bh_comoving)",
         },
         "assumptions": list(ASSUMPTIONS),
+        "warnings": _warnings(point),
         "files": {"budget_curve.csv": "z, densities (Msun Mpc^-3) and w_eff of the population, "
                                       "with dark energy; *_p16/_p84 over the posterior of k",
                   "budget.png": "physical density and w_eff against redshift"},
@@ -142,7 +172,19 @@ def run(args):
     print(f"cosmogrow budget: Omega_BH = {report['omega_bh']:.4g} "
           f"({100 * report['fraction_of_lambda']:.3g} % of Omega_Lambda = {report['omega_lambda']:.4g}); "
           f"eps_BH = {eps:.4g}; wrote {args.out}")
-    return 0
+    for warning in report["warnings"]:
+        print(f"cosmogrow budget: warning: {warning}")
+    return EXIT_NON_PHYSICAL if report["warnings"] else 0
+
+
+def _warnings(point):
+    """Non-physical outcomes, said plainly (the command then exits with code 3)."""
+    if point["fraction_of_lambda"] > EXCESS_FACTOR:
+        return [f"Omega_BH is {point['fraction_of_lambda']:.3g} times Omega_Lambda: a population this "
+                "dense would dominate the expansion history, which the fixed background cosmology "
+                "does not allow; this k (with this eps_BH) is excluded by the expansion itself, not "
+                "measured"]
+    return []
 
 
 def _title(report, is_posterior):

@@ -3,7 +3,8 @@
 import sys
 
 from ...checks.challenge import ALPHA, DEFAULT_REPLICAS, challenge_claim
-from ._common import add_check_options, load_checked_run, write_check_outputs
+from ... import validate
+from ._common import add_check_options, check_alpha, load_checked_run, write_check_outputs
 
 
 def register(subparsers):
@@ -34,6 +35,8 @@ def run(args):
     from ...report.null_figures import challenge_figure
     from ...report.null_markdown import challenge_markdown
 
+    validate.number(args.claim, "--claim")  # its range is the run's prior on k (checked with the data)
+    check_alpha(args.alpha)
     config, data = load_checked_run(args)
     result = challenge_claim(config, data, args.claim, replicas=args.replicas, mode=args.mode,
                              seed=config.seed, alpha=args.alpha, on_progress=_progress(args.quiet))

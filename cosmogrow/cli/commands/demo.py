@@ -44,6 +44,8 @@ def stages(data, out, only_fit=False):
             ("stellar remnants", ["remnants", str(data / "remnants.csv"), "--posterior", fit_dir,
                                   "--out", str(out / "remnants")]),
         ]
+    # a second demo replaces the first (a campaign of the same design continues its journal instead)
+    plan = [(name, argv if argv[0] == "inject" else [*argv, "--force"]) for name, argv in plan]
     folders = [argv[argv.index("--out") + 1] for _, argv in plan]
     plan.append(("report", ["report", *folders, "--out", str(out / "report.html"),
                             "--title", "cosmogrow demo: an invented four-survey programme",

@@ -7,8 +7,11 @@ from pathlib import Path
 import numpy as np
 
 from ...config import read_run_config
+from ...errors import CosmogrowError
 from ...inference.fit import load_data, run_fit
-from ...outputs import staged_directory, write_json
+from ...inference.resume import chain_attrs, find_resumable, fit_fingerprint, stored_seed
+from ...outputs import staged_directory, stale_stages, write_json
+from ._common import add_seed_option, claim_out, resolve_seed
 
 EXIT_NOT_CONVERGED = 3
 
@@ -20,19 +23,16 @@ def register(subparsers):
                         help="catalogue files (CSV, TSV, ECSV, FITS, Parquet); replace the config's samples")
     parser.add_argument("--config", help="run configuration (TOML)")
     parser.add_argument("--out", default="results", help="results folder (default: results)")
-    parser.add_argument("--seed", type=int, help="random seed (default: the config's, else chosen and recorded)")
+    add_seed_option(parser, "random seed (default: the config's, else chosen and recorded)")
     parser.add_argument("--form", choices=("ratio", "relation"), help="model form (default: ratio)")
     parser.add_argument("--plain", action="store_true", help="ignore declared selection (naive likelihood)")
-    parser.add_argument("--resume", action="store_true", help="continue the chain in OUT/chain.h5")
+    again = parser.add_mutually_exclusive_group()
+    again.add_argument("--resume", action="store_true",
+                       help="continue the chain of an earlier or killed run into --out (same inputs, "
+                            "configuration and seed)")
+    again.add_argument("--force", action="store_true", help="replace the results of an earlier fit in --out")
     parser.add_argument("--quiet", action="store_true", help="no progress lines")
     parser.set_defaults(run=run)
-
-
-def resolve_seed(config, seed):
-    """Command-line seed, else the config's, else a fresh one (recorded in the results)."""
-    if seed is None and config.seed is None:
-        seed = int(np.random.SeedSequence().entropy % 2**32)
-    return config.with_overrides(seed=seed)
 
 
 def progress_printer(quiet):
@@ -49,18 +49,63 @@ def progress_printer(quiet):
 
 def run(args):
     config = read_run_config(args.config).with_overrides(form=args.form, catalogs=args.catalogs)
+    out = Path(args.out)
+    claim_out(args, "fit", resume=args.resume)
+    if args.resume and args.seed is None and config.seed is None:
+        args.seed = stored_seed(out)
     config = resolve_seed(config, args.seed)
     data = load_data(config)
-    out = Path(args.out)
-    with staged_directory(out) as stage:
-        if args.resume and (out / "chain.h5").exists():
-            shutil.copy2(out / "chain.h5", stage / "chain.h5")
-        result = run_fit(config, data, chain_path=stage / "chain.h5", selection_aware=not args.plain,
-                         on_check=progress_printer(args.quiet))
-        write_fit_outputs(stage, config, data, result)
+    fingerprint = fit_fingerprint(config, data, selection_aware=not args.plain)
+    previous = _chain_to_continue(args, out, config, fingerprint)
+    try:
+        with staged_directory(out) as stage:
+            if previous is not None:
+                shutil.copy2(previous, stage / "chain.h5")
+            result = run_fit(config, data, chain_path=stage / "chain.h5", selection_aware=not args.plain,
+                             on_check=progress_printer(args.quiet),
+                             chain_attrs=chain_attrs(fingerprint, config.seed))
+            if not np.isfinite(result.summary["k"]["median"]):
+                raise CosmogrowError("the fit gave a non-finite k; nothing written (check the inputs' "
+                                     "ranges and the [priors] table)")
+            if args.resume and _worse_than_before(out, result):
+                raise _KeepEarlier
+            write_fit_outputs(stage, config, data, result)
+    except _KeepEarlier:
+        print(f"cosmogrow fit: the continued chain did not converge but the results in {out} did; "
+              "they are kept", file=sys.stderr)
+        return EXIT_NOT_CONVERGED
+    if args.force or previous is not None:  # staging folders of killed runs: replaced or continued
+        for stage in stale_stages(out):
+            if (stage / "chain.h5").exists():
+                shutil.rmtree(stage, ignore_errors=True)
     print((out / "summary.md").read_text())
     print(f"results written to {out}/")
     return 0 if result.chain.converged else EXIT_NOT_CONVERGED
+
+
+def _chain_to_continue(args, out, config, fingerprint):
+    """With --resume, the chain file to continue (inference.resume.find_resumable), else None."""
+    if not args.resume:
+        return None
+    previous = find_resumable(out, fingerprint, config.sampler.max_steps, config.source)
+    if previous is None and not args.quiet:
+        print(f"cosmogrow fit: no chain of this run to continue in {out}; starting a new one", file=sys.stderr)
+    return previous
+
+
+class _KeepEarlier(Exception):
+    """The new results are worse than those already in --out."""
+
+
+def _worse_than_before(out, result):
+    """True when `out` holds a converged fit and this one is not converged (never replace it)."""
+    import json
+
+    try:
+        before = json.loads((out / "summary.json").read_text())["convergence"]["converged"]
+    except (OSError, ValueError, KeyError, TypeError):
+        return False
+    return bool(before) and not result.chain.converged
 
 
 def write_fit_outputs(folder, config, data, result):

@@ -6,11 +6,14 @@ from pathlib import Path
 
 import numpy as np
 
-from ...campaigns.runner import prepare_campaign, run_campaign, stored_seed
+from ...campaigns.runner import JOURNAL, STAMP, prepare_campaign, run_campaign, stored_seed
 from ...campaigns.config import read_campaign_config
 from ...errors import ConfigError
 from ...campaigns.executors import make_executor
 from ...outputs import staged_directory, write_json
+from ._common import add_force_option, add_seed_option, claim_out
+
+EXIT_FAILED_MOCKS = 3
 
 
 def register(subparsers):
@@ -25,8 +28,9 @@ def register(subparsers):
     where.add_argument("--workers", type=int, help="local worker processes (default: all cores)")
     where.add_argument("--scheduler", help="Dask scheduler address tcp://host:port, or 'local' "
                                            "for a LocalCluster on 127.0.0.1")
-    parser.add_argument("--seed", type=int, help="campaign seed (default: the config's, else the "
-                                                 "seed of an interrupted run in --out, else chosen)")
+    add_seed_option(parser, "campaign seed (default: the config's, else the seed of an interrupted "
+                            "run in --out, else chosen)")
+    add_force_option(parser)
     parser.add_argument("--quiet", action="store_true", help="no progress lines")
     parser.set_defaults(run=run)
 
@@ -61,15 +65,19 @@ def _clock(seconds):
 def run(args):
     spec = read_campaign_config(args.config)
     out = Path(args.out)
+    if args.workers is not None and args.workers < 1:
+        raise ConfigError(f"--workers: expected an integer >= 1, got {args.workers}")
+    earlier = claim_out(args, "inject", resume=True)  # an interrupted campaign continues
     seed = args.seed if args.seed is not None else spec.seed
-    if seed is None:
+    if seed is None and not args.force:
         seed = stored_seed(out)
     if seed is None:
         seed = int(np.random.SeedSequence().entropy % 2**32)
     spec = spec.with_seed(seed)
-    if args.workers is not None and args.workers < 1:
-        raise ConfigError(f"--workers: expected an integer >= 1, got {args.workers}")
     context = prepare_campaign(spec)
+    if earlier and args.force:
+        for name in (STAMP, JOURNAL):  # start afresh; the old results go when the new ones are in
+            (out / name).unlink(missing_ok=True)
     executor = make_executor(workers=args.workers, scheduler=args.scheduler)
     try:
         if not args.quiet:
@@ -79,10 +87,15 @@ def run(args):
         result = run_campaign(context, out, executor, on_progress=progress_printer(args.quiet))
     finally:
         executor.close()
-    with staged_directory(out) as stage:
+    with staged_directory(out, keep=(STAMP, JOURNAL)) as stage:
         write_campaign_outputs(stage, result)
     print(campaign_text(result.summary))
     print(f"results written to {out}/")
+    failed = int((result.results["error"] != "").sum())
+    if failed:
+        print(f"cosmogrow inject: {failed} of {len(result.results)} mock fits failed (see the 'error' "
+              f"column of {out / 'results.parquet'})", file=sys.stderr)
+        return EXIT_FAILED_MOCKS
     return 0
 
 

@@ -3,7 +3,7 @@
 import sys
 
 from ...checks.null_suite import ALPHA, DEFAULT_REPEATS, run_null_tests
-from ._common import add_check_options, load_checked_run, positive, write_check_outputs
+from ._common import add_check_options, check_alpha, load_checked_run, positive, write_check_outputs
 
 
 def register(subparsers):
@@ -23,6 +23,7 @@ def run(args):
     from ...report.null_markdown import nulltests_markdown
 
     positive("--repeats", args.repeats)
+    check_alpha(args.alpha)
     config, data = load_checked_run(args)
     progress = None if args.quiet else (lambda name: print(f"  running {name}", file=sys.stderr))
     result = run_null_tests(config, data, mode=args.mode, seed=config.seed, repeats=args.repeats,

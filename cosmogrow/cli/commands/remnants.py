@@ -2,11 +2,14 @@
 
 import numpy as np
 
-from ... import background, outputs
+from ... import background, outputs, validate
 from ...consequences import remnants
 from ...consequences.budget import summarise_samples
 from ...errors import ConfigError
-from ._common import positive, read_k_samples
+from ._common import add_force_option, claim_out, positive, read_k_samples
+
+#: As for the budget: beyond the fit's default prior on k.
+K_LIMIT = 10.0
 
 ASSUMPTIONS = (
     "Each black hole grew only by coupling, M ∝ a^k, from its formation epoch to its observation; "
@@ -23,7 +26,7 @@ def register(subparsers):
     parser = subparsers.add_parser(
         "remnants", help="birth masses of stellar-mass black holes under coupled growth",
         description="Birth mass M_obs ((1+z_obs)/(1+z_form))^k of each black hole, the probability "
-                    "that it exceeds the neutron-star limit, and the largest k allowed at 95 %%.")
+                    "that it exceeds the neutron-star limit, and the largest k allowed at 95 %.")
     parser.add_argument("catalog", metavar="CATALOG",
                         help="CSV or ECSV: mass, mass_err (Msun), optional id and z_obs, and z_form or age_gyr")
     parser.add_argument("--k", type=float, help="coupling exponent to evaluate")
@@ -33,18 +36,21 @@ def register(subparsers):
                         help="least birth mass of a black hole, Msun (default %(default)g)")
     parser.add_argument("--cosmology", default=None, help="astropy realisation name (default Planck18)")
     parser.add_argument("--out", required=True, metavar="DIR", help="output directory")
+    add_force_option(parser)
     parser.set_defaults(run=run)
 
 
 def run(args):
     if args.k is None and args.posterior is None:
         raise ConfigError("remnants: expected --k K, --posterior FIT_DIR, or both")
-    if args.k is not None and not np.isfinite(args.k):
-        raise ConfigError(f"--k: expected a finite number, got {args.k}")
+    if args.k is not None:
+        validate.number(args.k, "--k", low=-K_LIMIT, high=K_LIMIT)
     positive("--limit", args.limit)
-    cosmo = background.get_cosmology(args.cosmology)
+    with validate.in_file("--cosmology"):
+        cosmo = background.get_cosmology(args.cosmology)
     samples = read_k_samples(args.posterior) if args.posterior else None
     catalog = remnants.read_remnants(args.catalog, cosmo)
+    claim_out(args, "remnants")
     k_summary = summarise_samples(samples) if samples is not None else None
     k_eval = float(args.k) if args.k is not None else k_summary["median"]
     births = remnants.birth_mass(catalog.mass, catalog.z_obs, catalog.z_form, k_eval)

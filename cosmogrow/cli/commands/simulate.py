@@ -7,6 +7,8 @@ from ...config import load_toml
 from ...errors import ConfigError
 from ...outputs import staged_directory, write_json
 from ...simulation.population import simulate_population
+from ...validate import in_file
+from ._common import add_force_option, add_seed_option, claim_out
 
 TRUTH_FILE = "truth.json"
 
@@ -20,22 +22,23 @@ def register(subparsers):
     parser.add_argument("--config", required=True, metavar="SIM.toml",
                         help="simulator configuration (TOML)")
     parser.add_argument("--out", required=True, metavar="DIR", help="output directory")
-    parser.add_argument("--seed", type=int, default=None,
-                        help="random seed (wins over the configuration's; default: the configuration's, "
-                             "else chosen and recorded in truth.json)")
+    add_seed_option(parser, "random seed (wins over the configuration's; default: the configuration's, "
+                            "else chosen and recorded in truth.json)")
+    add_force_option(parser)
     parser.set_defaults(run=run)
 
 
 def run(args):
     config = load_toml(args.config)
-    if args.seed is not None and args.seed < 0:
-        raise ConfigError(f"--seed: expected a non-negative integer, got {args.seed}")
-    catalog, truth = simulate_population(config, seed=args.seed)
+    claim_out(args, "simulate")
+    with in_file(args.config):
+        for entry in config.get("sample", []) if isinstance(config.get("sample"), list) else []:
+            name = entry.get("name") if isinstance(entry, dict) else None
+            if isinstance(name, str) and ("/" in name or "\\" in name or name.startswith(".")):
+                raise ConfigError(f"sample '{name}': the name is used as a file name and cannot contain "
+                                  "'/' or '\\' or start with '.'")
+        catalog, truth = simulate_population(config, seed=args.seed)
     names = catalog.sample_names
-    for name in names:
-        if "/" in name or "\\" in name or name.startswith("."):
-            raise ConfigError(f"sample '{name}': the name is used as a file name and cannot contain "
-                              "'/' or '\\' or start with '.'")
     out = Path(args.out)
     with staged_directory(out) as stage:
         for name in names:
