@@ -16,7 +16,8 @@ EXIT_OK = 0
 EXIT_BAD_INPUT = 2
 EXIT_NOT_CONVERGED = 3
 
-COMMANDS = ("fit", "simulate", "inject", "nulltest", "challenge", "budget", "remnants", "report", "demo")
+COMMANDS = ("fit", "simulate", "inject", "nulltest", "challenge", "forecast", "budget", "remnants", "report",
+            "demo")
 
 
 def build_parser(only=None):
