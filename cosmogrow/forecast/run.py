@@ -9,9 +9,10 @@ import numpy as np
 from ..background import describe
 from ..campaigns.mocks import fit_replica
 from ..data.catalog import Catalog
+from ..errors import ConfigError
 from ..inference.fit import FitData
 from ..outputs import package_versions
-from ..seeding import child_seed
+from ..seeding import child_seed, make_rng
 from ..simulation.population import resample_hosts, simulate_population
 from . import scans
 from .fisher import expected_information, population, sigma_of
@@ -48,6 +49,9 @@ def run_forecast(plan, *, check=None, seed=None, on_mock=None):
     info = expected_information(plan, population(plan, extra, seed=child_seed(seed, 0)))
     sizes = base_sizes(plan)
     sigma_k = info.sigma_k(sizes)
+    if not np.isfinite(sigma_k):
+        raise ConfigError(f"{plan.source}: no redshift lever arm: k is not measurable with this plan "
+                          "(its Fisher matrix is singular in k)")
     result = {**power_row(sigma_k, plan.truth.k, plan.threshold_sigma),
               "threshold_sigma": plan.threshold_sigma, "k_true": plan.truth.k,
               "parameters": parameter_widths(info, sizes),
@@ -95,12 +99,33 @@ def describe_samples(plan, info):
     return out
 
 
+def offset_widths(plan):
+    """Prior width (dex) of the offset of every method of the plan but the zero point."""
+    options = plan.run_config.model
+    widths = options.method_offset_width
+    methods = {plan.method_of(name) for name in plan.sizes} - {options.zero_point_method}
+    if isinstance(widths, dict):
+        return {m: float(widths.get(m, widths.get("default", 0.3))) for m in sorted(methods)}
+    return {m: float(widths) for m in sorted(methods)}
+
+
+def mock_truth(plan, rng):
+    """The plan's truth with every method offset drawn from its prior around the plan's value, so
+    that the mocks' spread of k carries the offset uncertainty the prior states (the forecast's
+    sigma_k includes the prior's precision)."""
+    truth = plan.truth.to_dict()
+    for method, width in offset_widths(plan).items():  # relative to the zero point, whose offset stays
+        truth["delta"][method] = truth["delta"].get(method, 0.0) + width * rng.standard_normal()
+    return truth
+
+
 def draw_mock(plan, seed):
-    """One mock of the plan at its planned sizes and truth (simulated and kept samples)."""
+    """One mock of the plan at its planned sizes (simulated and kept samples); its method offsets
+    are drawn from their priors (`mock_truth`)."""
+    truth = mock_truth(plan, make_rng(child_seed(seed, 99)))
     parts = []
     if plan.sim.samples:
-        parts.append(simulate_population(plan.sim_raw, seed=child_seed(seed, 0)).catalog)
-    truth = plan.truth.to_dict()
+        parts.append(simulate_population({**plan.sim_raw, "truth": truth}, seed=child_seed(seed, 0)).catalog)
     for i, kept in enumerate(plan.kept):
         parts.append(resample_hosts(kept.catalog, truth, {kept.name: list(kept.selection)}, plan.cosmology,
                                     seed=child_seed(seed, 1 + i), host_errors=plan.run_config.model.host_errors))

@@ -1,0 +1,164 @@
+"""The forecast: Fisher width of k against closed forms, scaling, the k-offset degeneracy, the
+command's outputs and its errors."""
+
+import json
+
+import numpy as np
+import pytest
+from scipy import stats
+
+from cosmogrow.cli.dispatch import main
+from cosmogrow.data.readers import write_catalog
+from cosmogrow.forecast import scans
+from cosmogrow.forecast.fisher import exclusion_power, expected_information, population
+from cosmogrow.forecast.scans import base_sizes
+from cosmogrow.simulation.population import simulate_population
+
+from forecast_plans import closed_form_sigma_k, make_plan, sample
+
+MC = 20000
+
+
+def information(plan, seed=0, mc_objects=MC):
+    extra = [plan.anchor_table] if plan.anchor_table else []
+    return expected_information(plan, population(plan, extra, seed=seed, mc_objects=mc_objects))
+
+
+def test_sigma_k_matches_closed_form_without_selection():
+    # One method, no selection, ratio form, first-order host errors: the model's variance is
+    # σ_int² + e_m² + e_s² and the Fisher width of k is the weighted lever-arm closed form.
+    plan = make_plan([sample("near", 100, (0.01, 0.1), "dynamical"),
+                      sample("far", 200, (0.5, 2.0), "dynamical", log_mbh_err=0.3)],
+                     forecast={"mc_objects": MC})
+    sigma = information(plan).sigma_k(base_sizes(plan))
+    expected = closed_form_sigma_k([(100, 0.01, 0.1, 0.1, 0.15), (200, 0.5, 2.0, 0.3, 0.15)], 0.3)
+    assert sigma == pytest.approx(expected, rel=0.05)
+
+
+def test_kept_catalogue_enters_with_its_own_redshifts(tmp_path):
+    near = simulate_population({"seed": 3, "truth": {"k": 1.0, "sigma_int": 0.3},
+                                "sample": [sample("near", 60, (0.01, 0.1), "dynamical")]}).catalog
+    write_catalog(near, tmp_path / "near.csv")
+    plan = make_plan([{"name": "near", "path": str(tmp_path / "near.csv")},
+                      sample("far", 150, (0.5, 2.0), "dynamical")], forecast={"mc_objects": MC})
+    sigma = information(plan).sigma_k(base_sizes(plan))
+    # exact sums over the kept rows, expectation over the simulated sample
+    w = 1.0 / (0.3**2 + 0.1**2 + 0.15**2)
+    x_near = np.log10(1 + near.z)
+    from forecast_plans import lever_arm_moments
+    mean_far, var_far = lever_arm_moments(0.5, 2.0)
+    x_bar = (x_near.sum() + 150 * mean_far) / (60 + 150)
+    expected = (w * (np.sum((x_near - x_bar) ** 2) + 150 * (var_far + (mean_far - x_bar) ** 2))) ** -0.5
+    assert sigma == pytest.approx(expected, rel=0.05)
+
+
+def test_sigma_k_scales_as_inverse_sqrt_of_size():
+    tables = [sample("near", 40, (0.01, 0.05), "dynamical", selection={"kind": "sphere_of_influence"}),
+              sample("far", 60, (0.8, 1.5), "virial", selection={"kind": "flux_limit", "flux_limit": 1e-13})]
+    plan = make_plan(tables, model={"host_errors": "calibrated"}, forecast={"mc_objects": 3000})
+    info = information(plan, mc_objects=3000)
+    sizes = base_sizes(plan)
+    for factor in (4.0, 16.0):
+        grown = {name: n * factor for name, n in sizes.items()}
+        # the offset prior does not grow with the data, so compare without it and with it
+        ratio_free = info.sigma_k(sizes, offset_width=np.inf) / info.sigma_k(grown, offset_width=np.inf)
+        assert ratio_free == pytest.approx(np.sqrt(factor), rel=1e-6)
+    assert info.sigma_k(grown) < info.sigma_k(sizes) / 2
+
+
+def test_degenerate_plan_follows_offset_prior_and_anchor_collapses_it():
+    # Local dynamical, distant virial: k and delta[virial] are separated only by the offset prior.
+    plan = make_plan([sample("near", 50, (0.01, 0.05), "dynamical"),
+                      sample("far", 100, (1.0, 2.0), "virial")], forecast={"mc_objects": MC})
+    assert plan.anchor_table is not None and plan.anchor_table["method"] == "virial"
+    info = information(plan)
+    rows = scans.width_scan(info, plan)
+    sigmas = [row["sigma_k"] for row in rows]
+    assert np.all(np.diff(sigmas) > 0)  # wider offset prior, wider k
+    one_method = closed_form_sigma_k([(50, 0.01, 0.05, 0.1, 0.15), (100, 1.0, 2.0, 0.4, 0.15)], 0.3)
+    within_only = closed_form_sigma_k([(50, 0.01, 0.05, 0.1, 0.15), (100, 1.0, 2.0, 0.4, 0.15)], 0.3,
+                                      separate_intercepts=True)
+    assert info.sigma_k(base_sizes(plan), offset_width=1e-4) == pytest.approx(one_method, rel=0.05)
+    assert sigmas[-1] == pytest.approx(within_only, rel=0.05)  # no prior: within-sample lever arms only
+    width = {row["width"]: row["sigma_k"] for row in rows}
+    assert width[1.0] > 2.5 * width[0.1]
+    breaker = {row["n"]: row for row in scans.breaker_scan(info, plan)}
+    assert breaker[0]["sigma_k_free"] > 2.5 * breaker[0]["sigma_k_narrow"]   # follows the prior
+    assert breaker[300]["sigma_k_free"] < 1.1 * breaker[300]["sigma_k_narrow"]  # ... no longer
+    assert breaker[300]["sigma_k_free"] < breaker[0]["sigma_k_free"] / 3
+
+
+def test_exclusion_power_hand_values():
+    # Φ(|k_true − k0|/σ − t): a 3σ-away null is excluded at 3σ half the time (common practice).
+    assert exclusion_power(1.0, 0.0, 1.0 / 3.0, 3.0) == pytest.approx(0.5)
+    assert exclusion_power(1.0, 3.0, 1.0 / 3.0, 3.0) == pytest.approx(stats.norm.cdf(3.0))
+    assert exclusion_power(1.0, 0.0, np.inf, 3.0) == 0.0
+
+
+PLAN = """
+seed = 5
+[truth]
+k = 1.0
+[model]
+host_errors = "first_order"
+[forecast]
+mc_objects = 2000
+[[sample]]
+name = "near"
+n = {n_near}
+z_range = {near_range}
+method = "dynamical"
+[[sample]]
+name = "far"
+n = 80
+z_range = {far_range}
+method = "{far_method}"
+"""
+
+
+def write_plan(tmp_path, n_near=40, near_range="[0.01, 0.1]", far_range="[0.8, 1.6]", far_method="virial"):
+    path = tmp_path / "plan.toml"
+    path.write_text(PLAN.format(n_near=n_near, near_range=near_range, far_range=far_range,
+                                far_method=far_method))
+    return path
+
+
+def test_forecast_command_writes_its_outputs(tmp_path, capsys):
+    out = tmp_path / "out"
+    assert main(["forecast", "--config", str(write_plan(tmp_path)), "--out", str(out), "--check", "4",
+                 "--quiet"]) == 0
+    assert {p.name for p in out.iterdir()} == {"forecast.json", "summary.md", "forecast.png"}
+    result = json.loads((out / "forecast.json").read_text())
+    sigma, t = result["sigma_k"], result["threshold_sigma"]
+    assert t == 3.0 and sigma > 0
+    assert result["power_exclude_k0"] == pytest.approx(stats.norm.cdf(1.0 / sigma - t))
+    assert result["power_exclude_k3"] == pytest.approx(stats.norm.cdf(2.0 / sigma - t))
+    assert result["check"]["n"] == 4 and result["check"]["std"] > 0 and "mean" in result["check"]
+    for name in ("n_all", "n[near]", "n[far]", "offset_width", "breaker", "z_max[far]"):
+        assert isinstance(result["scans"][name], list) and result["scans"][name]
+    planned = next(r for r in result["scans"]["n_all"] if r["factor"] == 1.0)
+    assert planned["sigma_k"] == pytest.approx(sigma)
+    assert "σ(k)" in capsys.readouterr().out
+
+
+@pytest.mark.parametrize("edit, message", [
+    ({"n_near": 2}, "sample 'near': key 'n': expected at least 3 objects, got 2"),
+    ({"near_range": "[0.02, 0.025]", "far_range": "[0.02, 0.03]"}, "no redshift lever arm"),
+    ({"far_method": "maser_scaling"}, "key 'log_mbh_err' is required for method 'maser_scaling'"),
+])
+def test_impossible_plan_exits_2_with_one_line(tmp_path, capsys, edit, message):
+    out = tmp_path / "out"
+    path = write_plan(tmp_path, **edit)
+    assert main(["forecast", "--config", str(path), "--out", str(out), "--check", "0"]) == 2
+    err = capsys.readouterr().err.strip()
+    assert len(err.splitlines()) == 1 and message in err and str(path) in err
+    assert not out.exists()
+
+
+def test_bad_options_exit_2(tmp_path, capsys):
+    path = write_plan(tmp_path)
+    assert main(["forecast", "--config", str(path), "--check", "-1"]) == 2
+    assert "--check: expected an integer >= 0, got -1" in capsys.readouterr().err
+    path.write_text(path.read_text().replace("mc_objects = 2000", "mc_objects = 2000\nthreshold = 3"))
+    assert main(["forecast", "--config", str(path), "--out", str(tmp_path / "o")]) == 2
+    assert "forecast: unknown key 'threshold'" in capsys.readouterr().err
