@@ -12,6 +12,7 @@ from cosmogrow.data.readers import write_catalog
 from cosmogrow.forecast import scans
 from cosmogrow.forecast.fisher import exclusion_power, expected_information, population
 from cosmogrow.forecast.scans import base_sizes
+from cosmogrow.report.html import build_report
 from cosmogrow.simulation.population import simulate_population
 
 from forecast_plans import closed_form_sigma_k, make_plan, sample
@@ -139,6 +140,9 @@ def test_forecast_command_writes_its_outputs(tmp_path, capsys):
     planned = next(r for r in result["scans"]["n_all"] if r["factor"] == 1.0)
     assert planned["sigma_k"] == pytest.approx(sigma)
     assert "σ(k)" in capsys.readouterr().out
+    page = build_report([out], tmp_path / "report.html").read_text()
+    assert "Breaking the degeneracy between k and the offset of virial masses" in page
+    assert f"{sigma:.3f}" in page and "forecast.png" in page
 
 
 @pytest.mark.parametrize("edit, message", [

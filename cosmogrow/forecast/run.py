@@ -67,12 +67,39 @@ def run_forecast(plan, *, check=None, seed=None, on_mock=None):
                             "method": plan.method_of(plan.distant),
                             "zero_point_method": plan.run_config.model.zero_point_method}
     result["caveats"] = list(CAVEATS)
+    result["warnings"] = forecast_warnings(result)
     result["provenance"] = {"plan": plan.source, "seed": seed, "mc_objects": info.mc_sizes,
                             "cosmology": describe(plan.cosmology), "truth": plan.truth.to_dict(),
                             "model": plan.run_config.to_dict()["model"],
                             "inputs": [i for kept in plan.kept for i in kept.inputs],
                             "versions": package_versions()}
     return result
+
+
+def forecast_warnings(result):
+    """Plain-words warnings: mocks that disagree with the forecast, a width resting on a prior."""
+    warnings = []
+    check, sigma_k = result["check"], result["sigma_k"]
+    if check.get("std") is not None:
+        if abs(check["std"] - sigma_k) > 3 * check["std_error"] + 0.1 * sigma_k:
+            warnings.append(f"the spread of k over {check['n']} mocks ({check['std']:.3f}) differs from the "
+                            f"forecast ({sigma_k:.3f}): the large-sample approximation does not hold well "
+                            "for this plan (few objects, a strong selection or a boundary); trust the mocks")
+        if abs(check["mean"] - result["k_true"]) > 3 * check["std"] / np.sqrt(check["n"]):
+            warnings.append(f"the mean k of the mocks ({check['mean']:.3f}) differs from the true k "
+                            f"({result['k_true']:g}): the fit is biased for this plan (e.g. a method offset "
+                            "whose prior is centred away from its true value)")
+        if check["converged"] < check["n"]:
+            warnings.append(f"{check['n'] - check['converged']} of {check['n']} mock fits did not pass "
+                            "the fast estimator's convergence check")
+    planned = next((row for row in result["scans"]["breaker"]
+                    if row["n"] == result["samples"].get(result["degeneracy"]["anchor"], {}).get("n", 0)), None)
+    if planned and (not np.isfinite(planned["sigma_k_free"]) or planned["sigma_k_free"] > 1.5 * sigma_k):
+        free = "unbounded" if not np.isfinite(planned["sigma_k_free"]) else f"{planned['sigma_k_free']:.3f}"
+        warnings.append(f"σ(k) rests on the offset priors: without them it would be {free} instead of "
+                        f"{sigma_k:.3f}; a local sample measured with {result['degeneracy']['method']} "
+                        "masses would break the degeneracy (see the breaker scan)")
+    return warnings
 
 
 def parameter_widths(info, sizes):

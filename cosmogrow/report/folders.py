@@ -7,6 +7,7 @@ Kinds (and the file that marks them):
   challenge  challenge.json
   budget     budget.json
   remnants   remnants.json
+  forecast   forecast.json
 JSON is read defensively: a file that cannot be parsed is noted as a problem of the folder, not
 an exception, unless the folder then holds nothing readable at all.
 """
@@ -19,12 +20,13 @@ from ..errors import InputError
 from ..outputs import sha256_file
 
 KIND_FILES = {"nulltests": "nulltests.json", "challenge": "challenge.json", "budget": "budget.json",
-              "remnants": "remnants.json"}
-KIND_ORDER = ("fit", "campaign", "nulltests", "challenge", "budget", "remnants")
+              "remnants": "remnants.json", "forecast": "forecast.json"}
+KIND_ORDER = ("fit", "campaign", "nulltests", "challenge", "forecast", "budget", "remnants")
 KIND_TITLES = {"fit": "Posterior of k", "campaign": "Calibration by injection and recovery",
                "nulltests": "Null tests", "challenge": "Does a claimed k survive the selection?",
                "budget": "Dark-energy budget of coupled black holes",
-               "remnants": "Stellar-remnant test"}
+               "remnants": "Stellar-remnant test",
+               "forecast": "Forecast: how well would the planned observations measure k?"}
 TEXT_FILES = ("summary.md",)
 MAX_TEXT_CHARS = 20000
 
@@ -156,6 +158,7 @@ def collect_folders(paths):
         children = [child for child in children if child is not None]
         if not children:
             raise InputError(folder, "holds no recognisable results (expected summary.json, "
-                                     "nulltests.json, challenge.json, budget.json or remnants.json)")
+                                     "nulltests.json, challenge.json, forecast.json, budget.json or "
+                                     "remnants.json)")
         found.extend(children)
     return found

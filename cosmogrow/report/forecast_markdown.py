@@ -30,7 +30,7 @@ def _table(rows, columns):
 
 
 def _width(value):
-    return "none" if value is None else f"{value:g}"
+    return "none" if value is None or value == float("inf") else f"{value:g}"
 
 
 def forecast_markdown(result, title="cosmogrow forecast"):
@@ -59,5 +59,7 @@ def forecast_markdown(result, title="cosmogrow forecast"):
     if depth:
         lines += ["", f"## σ(k) against the upper redshift of '{degeneracy['distant']}'", ""]
         lines += _table(depth, (("z_max", "z max", lambda v: f"{v:.2f}"),) + power)
+    if result.get("warnings"):
+        lines += ["", "## Warnings", ""] + [f"- {text}" for text in result["warnings"]]
     lines += ["", "## Assumptions", ""] + [f"- {text}" for text in result["caveats"]] + [""]
     return "\n".join(lines)

@@ -19,7 +19,8 @@ from pathlib import Path
 from .. import __version__
 from ..errors import ConfigError
 from ..outputs import sha256_file
-from . import budget_section, calibration_section, checks_section, fit_section, method_text
+from . import (budget_section, calibration_section, checks_section, fit_section, forecast_section,
+               method_text)
 from .folders import KIND_TITLES, collect_folders
 from .htmlkit import (Cell, Markup, Numbering, definition_list, details, dig, esc, figure, fmt,
                       fmt_interval, fmt_p, join, pretty_json, table, tag)
@@ -27,7 +28,7 @@ from .page_css import KIND_COLOURS, stylesheet
 
 CSP = "default-src 'none'; img-src data:; style-src 'unsafe-inline'; base-uri 'none'; form-action 'none'"
 KIND_NAMES = {"fit": "fit", "campaign": "calibration campaign", "nulltests": "null tests",
-              "challenge": "challenge", "budget": "budget", "remnants": "remnants"}
+              "challenge": "challenge", "forecast": "forecast", "budget": "budget", "remnants": "remnants"}
 # kind -> (body(document, numbering, folder), warnings(document), one-line glance(document) or None)
 SECTIONS = {
     "fit": (fit_section.fit_body, fit_section.fit_warnings, None),
@@ -37,6 +38,8 @@ SECTIONS = {
                   checks_section.nulltests_glance),
     "challenge": (checks_section.challenge_body, checks_section.challenge_warnings,
                   checks_section.challenge_glance),
+    "forecast": (forecast_section.forecast_body, forecast_section.forecast_warnings,
+                 forecast_section.forecast_glance),
     "budget": (budget_section.budget_body, budget_section.budget_warnings, budget_section.budget_glance),
     "remnants": (budget_section.remnants_body, budget_section.remnants_warnings,
                  budget_section.remnants_glance),
@@ -58,6 +61,9 @@ FIGURES = {  # kind -> (file name, caption, full width)
                                     "each null hypothesis.", True),),
     "challenge": (("challenge.png", "The observed k among mocks simulated under the claimed k and under "
                                     "k = 0, fitted plainly and with the selection modelled.", True),),
+    "forecast": (("forecast.png", "Forecast σ(k) and power against the number of objects (all samples "
+                                  "scaled), with the mocks' spread of k at the planned size; σ(k) against "
+                                  "the size of the sample that breaks the k-offset degeneracy.", True),),
     "budget": (("budget.png", "Density of the coupled black-hole population against redshift, compared "
                               "with dark energy, and its effective equation of state.", True),),
     "remnants": (("remnants.png", "Birth masses of the stellar-mass black holes against the neutron-star "

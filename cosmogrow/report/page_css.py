@@ -7,7 +7,7 @@ from .style import INK, PALETTE
 
 TEAL, OCHRE, PLUM, SLATE, BRICK, OLIVE = PALETTE
 KIND_COLOURS = {"fit": TEAL, "campaign": PLUM, "nulltests": OLIVE, "challenge": BRICK,
-                "budget": OCHRE, "remnants": SLATE}
+                "budget": OCHRE, "remnants": SLATE, "forecast": TEAL}
 
 _CSS = """
 :root {
