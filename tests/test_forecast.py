@@ -11,6 +11,7 @@ from cosmogrow.cli.dispatch import main
 from cosmogrow.data.readers import write_catalog
 from cosmogrow.forecast import scans
 from cosmogrow.forecast.fisher import exclusion_power, expected_information, population
+from cosmogrow.forecast.run import parameter_widths
 from cosmogrow.forecast.scans import base_sizes
 from cosmogrow.report.html import build_report
 from cosmogrow.simulation.population import simulate_population
@@ -31,9 +32,16 @@ def test_sigma_k_matches_closed_form_without_selection():
     plan = make_plan([sample("near", 100, (0.01, 0.1), "dynamical"),
                       sample("far", 200, (0.5, 2.0), "dynamical", log_mbh_err=0.3)],
                      forecast={"mc_objects": MC})
-    sigma = information(plan).sigma_k(base_sizes(plan))
+    info = information(plan)
+    sigma = info.sigma_k(base_sizes(plan))
     expected = closed_form_sigma_k([(100, 0.01, 0.1, 0.1, 0.15), (200, 0.5, 2.0, 0.3, 0.15)], 0.3)
     assert sigma == pytest.approx(expected, rel=0.05)
+    # the scatter enters only the variance: F_σσ = Σ ½ (∂V/∂σ / V)² = Σ 2σ²/V² (Gaussian Fisher matrix,
+    # Tegmark, Taylor & Heavens 1997, ApJ 480, 22), checking the finite differences beyond the mean
+    variances = [0.3**2 + 0.1**2 + 0.15**2, 0.3**2 + 0.3**2 + 0.15**2]
+    f_sigma = sum(n * 2 * 0.3**2 / v**2 for n, v in zip((100, 200), variances))
+    widths = parameter_widths(info, base_sizes(plan))
+    assert widths["sigma_int"] == pytest.approx(f_sigma ** -0.5, rel=0.05)
 
 
 def test_kept_catalogue_enters_with_its_own_redshifts(tmp_path):
@@ -87,6 +95,10 @@ def test_degenerate_plan_follows_offset_prior_and_anchor_collapses_it():
     assert breaker[0]["sigma_k_free"] > 2.5 * breaker[0]["sigma_k_narrow"]   # follows the prior
     assert breaker[300]["sigma_k_free"] < 1.1 * breaker[300]["sigma_k_narrow"]  # ... no longer
     assert breaker[300]["sigma_k_free"] < breaker[0]["sigma_k_free"] / 3
+    needed = scans.cheapest_breaker(info, plan)
+    assert 10 < needed["n"] < 300
+    below = {**base_sizes(plan), "anchor": int(needed["n"] * 0.9)}
+    assert info.sigma_k(below, offset_scale=np.inf) > 1.1 * info.sigma_k(below, offset_scale=1 / 3)
 
 
 def test_exclusion_power_hand_values():
@@ -157,6 +169,19 @@ def test_impossible_plan_exits_2_with_one_line(tmp_path, capsys, edit, message):
     err = capsys.readouterr().err.strip()
     assert len(err.splitlines()) == 1 and message in err and str(path) in err
     assert not out.exists()
+
+
+def test_bad_anchor_and_missing_catalogue_exit_2(tmp_path, capsys):
+    path = write_plan(tmp_path)
+    text = path.read_text()
+    path.write_text(text.replace("mc_objects = 2000", 'mc_objects = 2000\nanchor = "nowhere"'))
+    assert main(["forecast", "--config", str(path), "--out", str(tmp_path / "o")]) == 2
+    assert "forecast.anchor: expected a sample of the plan other than the distant one" in capsys.readouterr().err
+    path.write_text(text + '[[sample]]\nname = "old"\npath = "missing.csv"\n')
+    assert main(["forecast", "--config", str(path), "--out", str(tmp_path / "o")]) == 2
+    err = capsys.readouterr().err
+    assert "missing.csv" in err and len(err.strip().splitlines()) == 1
+    assert not (tmp_path / "o").exists()
 
 
 def test_bad_options_exit_2(tmp_path, capsys):

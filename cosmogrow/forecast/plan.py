@@ -227,9 +227,6 @@ def _read_kept(table, index, base_dir):
                "drop_invalid": bool(table.get("drop_invalid", False)), "default_method": table.get("method")}
     catalog, inputs = read_catalogs([(path, options)])
     catalog = catalog.subset(catalog.sample == name)
-    for method in catalog.method_names:
-        if method not in METHOD_ERRORS and not np.all(np.isfinite(catalog.log_mbh_err)):
-            raise ConfigError(f"{label}: method {method!r} without mass errors")
     selection = build_selection(table.get("selection"), where=label)
     return KeptSample(name=name, catalog=catalog, selection=tuple(selection), inputs=inputs)
 

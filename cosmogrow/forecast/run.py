@@ -64,6 +64,7 @@ def run_forecast(plan, *, check=None, seed=None, on_mock=None):
     result["degeneracy"] = {"distant": plan.distant, "local": plan.local, "anchor": plan.anchor,
                             "anchor_is_new": plan.anchor_table is not None,
                             "anchor_sample": plan.anchor_table,
+                            "breaker_needed": scans.cheapest_breaker(info, plan),
                             "method": plan.method_of(plan.distant),
                             "zero_point_method": plan.run_config.model.zero_point_method}
     result["caveats"] = list(CAVEATS)

@@ -55,6 +55,11 @@ def forecast_markdown(result, title="cosmogrow forecast"):
                     (("n", "objects", str), ("sigma_k_narrow", "σ(k), priors ×⅓", _num),
                      ("sigma_k", "σ(k)", _num), ("sigma_k_wide", "σ(k), priors ×3", _num),
                      ("sigma_k_free", "σ(k), no prior", _num)))
+    needed = degeneracy.get("breaker_needed")
+    if needed:
+        lines += ["", f"With {needed['n']} objects in '{degeneracy['anchor']}' σ(k) = {needed['sigma_k']:.3f} "
+                      f"no longer rests on the offset priors (without them it is within "
+                      f"{100 * needed['tolerance']:.0f} % of its value with priors ×⅓)."]
     depth = result["scans"].get(f"z_max[{degeneracy['distant']}]")
     if depth:
         lines += ["", f"## σ(k) against the upper redshift of '{degeneracy['distant']}'", ""]

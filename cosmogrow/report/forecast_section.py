@@ -64,6 +64,10 @@ def _breaker_table(document, number):
                f"masses: σ(k) against the number of local objects measured with them "
                f"('{fmt(dig(degeneracy, 'anchor'))}'). With none, σ(k) follows the width of the offset "
                "prior; with enough, it no longer depends on it.")
+    needed = dig(degeneracy, "breaker_needed")
+    if isinstance(needed, dict):
+        caption += (f" From {fmt(dig(needed, 'n'))} objects on, σ(k) without offset prior is within "
+                    f"{_pct(dig(needed, 'tolerance'))} of σ(k) with priors ×⅓.")
     return table(["local objects", "σ(k), priors ×⅓", "σ(k), priors as planned", "σ(k), priors ×3",
                   "σ(k), no offset prior"], rows, number=number, caption=caption)
 
