@@ -1,8 +1,9 @@
 """The web report's part for a forecast (forecast.json, docs/method.md#forecast): the predicted
 width of k and the power, each sample's share, the mocks' check, and the k-offset degeneracy with
-the sample that breaks it. Every key is optional."""
+the sample that breaks it. Every key is optional. `forecast_context` gives the data of the
+template sections/forecast.html.j2."""
 
-from .htmlkit import Cell, as_float, definition_list, dig, fmt, join, table, tag
+from .formatting import Cell, as_float, dig, fmt, table
 
 
 def _pct(value):
@@ -39,10 +40,10 @@ def _facts(document):
         facts += [(f"spread of k over {fmt(dig(check, 'n'))} mocks (fast fits)",
                    f"{fmt(dig(check, 'std'), 3)} ± {fmt(dig(check, 'std_error'), 3)}"),
                   ("mean k of the mocks", fmt(dig(check, "mean"), 3))]
-    return definition_list(facts)
+    return facts
 
 
-def _samples_table(document, number):
+def _samples_table(document):
     rows = []
     for name, row in (dig(document, "samples", default={}) or {}).items():
         z = dig(row, "z_range", default=[None, None])
@@ -50,12 +51,12 @@ def _samples_table(document, number):
                      f"{fmt(z[0], 3)}–{fmt(z[1], 3)}", _pct(dig(row, "information_share")),
                      _sigma(dig(row, "sigma_k_without"))])
     return table(["sample", "n", "method", "z", "share of the information on k", "σ(k) without it"], rows,
-                 number=number, numeric=[1, 3, 4, 5],
+                 numeric=[1, 3, 4, 5],
                  caption="Each planned sample's share of the information on k (1 − F_kk without it / F_kk, "
                          "after the nuisances are marginalised).")
 
 
-def _breaker_table(document, number):
+def _breaker_table(document):
     degeneracy = dig(document, "degeneracy", default={})
     rows = [[fmt(dig(row, "n")), _sigma(dig(row, "sigma_k_narrow")), _sigma(dig(row, "sigma_k")),
              _sigma(dig(row, "sigma_k_wide")), _sigma(dig(row, "sigma_k_free"))]
@@ -69,26 +70,25 @@ def _breaker_table(document, number):
         caption += (f" From {fmt(dig(needed, 'n'))} objects on, σ(k) without offset prior is within "
                     f"{_pct(dig(needed, 'tolerance'))} of σ(k) with priors ×⅓.")
     return table(["local objects", "σ(k), priors ×⅓", "σ(k), priors as planned", "σ(k), priors ×3",
-                  "σ(k), no offset prior"], rows, number=number, caption=caption)
+                  "σ(k), no offset prior"], rows, caption=caption)
 
 
-def _scan_table(rows, key, label, number, caption):
+def _scan_table(rows, key, label, caption):
     body = [[fmt(dig(row, key), 2) if dig(row, key) is not None else "none", _sigma(dig(row, "sigma_k")),
              _pct(dig(row, "power_exclude_k0")), _pct(dig(row, "power_exclude_k3"))] for row in rows]
-    return table([label, "σ(k)", "power vs k = 0", "power vs k = 3"], body, number=number, caption=caption)
+    return table([label, "σ(k)", "power vs k = 0", "power vs k = 3"], body, caption=caption)
 
 
-def forecast_body(document, numbering, folder=None):
-    """Facts, the samples' shares, the size, prior and breaker scans, and the assumptions."""
+def forecast_context(document, folder=None):
+    """Data of the template sections/forecast.html.j2: facts, the samples' shares, the size, prior
+    and breaker scans, and the assumptions."""
     scans = dig(document, "scans", default={})
-    parts = [_facts(document), _samples_table(document, numbering.table),
-             _scan_table(dig(scans, "n_all", default=[]), "n_total", "objects", numbering.table,
-                         "σ(k) and power when every sample grows by the same factor."),
-             _scan_table(dig(scans, "offset_width", default=[]), "width", "offset prior width (dex)",
-                         numbering.table, "σ(k) against the width of every mass-method offset prior."),
-             _breaker_table(document, numbering.table)]
     caveats = dig(document, "caveats", default=[])
-    if isinstance(caveats, list) and caveats:
-        parts.append(tag("div", tag("h4", "Assumptions of the forecast")
-                         + tag("ul", join(tag("li", str(item)) for item in caveats)), cls="assumptions"))
-    return join(parts)
+    return {"facts": _facts(document),
+            "tables": [_samples_table(document),
+                       _scan_table(dig(scans, "n_all", default=[]), "n_total", "objects",
+                                   "σ(k) and power when every sample grows by the same factor."),
+                       _scan_table(dig(scans, "offset_width", default=[]), "width", "offset prior width (dex)",
+                                   "σ(k) against the width of every mass-method offset prior.")],
+            "breaker": _breaker_table(document),
+            "assumptions": [str(item) for item in caveats] if isinstance(caveats, list) else []}
