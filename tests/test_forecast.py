@@ -2,6 +2,7 @@
 command's outputs and its errors."""
 
 import json
+import shutil
 
 import numpy as np
 import pytest
@@ -136,10 +137,18 @@ def write_plan(tmp_path, n_near=40, near_range="[0.01, 0.1]", far_range="[0.8, 1
     return path
 
 
-def test_forecast_command_writes_its_outputs(tmp_path, capsys):
-    out = tmp_path / "out"
-    assert main(["forecast", "--config", str(write_plan(tmp_path)), "--out", str(out), "--check", "4",
+@pytest.fixture(scope="module")
+def forecast_dir(tmp_path_factory):
+    """One run of the command on a small plan (shared by the output and report tests)."""
+    root = tmp_path_factory.mktemp("forecast")
+    out = root / "out"
+    assert main(["forecast", "--config", str(write_plan(root)), "--out", str(out), "--check", "4",
                  "--quiet"]) == 0
+    return out
+
+
+def test_forecast_command_writes_its_outputs(forecast_dir):
+    out = forecast_dir
     assert {p.name for p in out.iterdir()} == {"forecast.json", "summary.md", "forecast.png"}
     result = json.loads((out / "forecast.json").read_text())
     sigma, t = result["sigma_k"], result["threshold_sigma"]
@@ -151,10 +160,32 @@ def test_forecast_command_writes_its_outputs(tmp_path, capsys):
         assert isinstance(result["scans"][name], list) and result["scans"][name]
     planned = next(r for r in result["scans"]["n_all"] if r["factor"] == 1.0)
     assert planned["sigma_k"] == pytest.approx(sigma)
-    assert "σ(k)" in capsys.readouterr().out
-    page = build_report([out], tmp_path / "report.html").read_text()
+    assert f"σ(k) = {sigma:.3f}" in (out / "summary.md").read_text()
+
+
+def test_report_shows_the_forecast(forecast_dir, tmp_path):
+    sigma = json.loads((forecast_dir / "forecast.json").read_text())["sigma_k"]
+    written = build_report([forecast_dir], tmp_path / "report.html")
+    assert written.problems == ()  # forecast.json holds every key the page reads, well typed
+    page = written.path.read_text()
     assert "Breaking the degeneracy between k and the offset of virial masses" in page
     assert f"{sigma:.3f}" in page and "forecast.png" in page
+
+
+def test_report_escapes_forecast_text_and_names_a_malformed_file(forecast_dir, tmp_path, capsys):
+    folder = tmp_path / "fc"
+    shutil.copytree(forecast_dir, folder)
+    document = json.loads((folder / "forecast.json").read_text())
+    document["samples"]["<script>alert('s')</script>"] = document["samples"].pop("near")
+    document["warnings"] = ["<img src=x onerror=alert(1)>"]
+    (folder / "forecast.json").write_text(json.dumps(document))
+    page = build_report([folder], tmp_path / "a.html").path.read_text()
+    assert "<script" not in page.lower() and "<img src=x" not in page
+    assert "&lt;img src=x onerror=alert(1)&gt;" in page
+    document["sigma_k"] = "0.3"
+    (folder / "forecast.json").write_text(json.dumps(document))
+    assert main(["report", str(folder), "--out", str(tmp_path / "b.html")]) == 3
+    assert "key sigma_k: expected a finite number, got '0.3'" in capsys.readouterr().err
 
 
 @pytest.mark.parametrize("edit, message", [
