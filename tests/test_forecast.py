@@ -62,6 +62,25 @@ def test_kept_catalogue_enters_with_its_own_redshifts(tmp_path):
     assert sigma == pytest.approx(expected, rel=0.05)
 
 
+def test_plan_of_kept_catalogues_only(tmp_path):
+    result = simulate_population({"seed": 4, "truth": {"k": 1.0, "sigma_int": {"near": 0.3, "far": 0.3}},
+                                  "sample": [sample("near", 40, (0.01, 0.1), "dynamical"),
+                                             sample("far", 40, (1.0, 2.0), "dynamical")]})
+    for name in ("near", "far"):
+        write_catalog(result.catalog.subset(result.catalog.sample == name), tmp_path / f"{name}.csv")
+    plan = tmp_path / "plan.toml"
+    plan.write_text('[truth]\nk = 1.0\nsigma_int = { near = 0.3, far = 0.3 }\n[model]\nhost_errors = "first_order"\n'
+                    '[forecast]\nmc_objects = 2000\n[[sample]]\nname = "near"\npath = "near.csv"\n'
+                    '[[sample]]\nname = "far"\npath = "far.csv"\n')
+    assert main(["forecast", "--config", str(plan), "--out", str(tmp_path / "out"), "--check", "3",
+                 "--quiet"]) == 0
+    forecast = json.loads((tmp_path / "out" / "forecast.json").read_text())
+    assert forecast["samples"]["far"]["kept_catalogue"] and forecast["scans"]["z_max[far]"] == []
+    x = np.log10(1 + result.catalog.z)  # one method, no selection: the exact weighted lever arm
+    w = 1.0 / (0.3**2 + 0.1**2 + 0.15**2)
+    assert forecast["sigma_k"] == pytest.approx((w * np.sum((x - x.mean()) ** 2)) ** -0.5, rel=0.03)
+
+
 def test_sigma_k_scales_as_inverse_sqrt_of_size():
     tables = [sample("near", 40, (0.01, 0.05), "dynamical", selection={"kind": "sphere_of_influence"}),
               sample("far", 60, (0.8, 1.5), "virial", selection={"kind": "flux_limit", "flux_limit": 1e-13})]

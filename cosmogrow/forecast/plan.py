@@ -30,7 +30,7 @@ from ..config import load_toml, parse_run_config
 from ..data.readers import read_catalogs
 from ..errors import ConfigError
 from ..selection.compiled import build_selection
-from ..simulation.plan import METHOD_ERRORS, parse_sim_config
+from ..simulation.plan import METHOD_ERRORS, parse_sim_config, parse_truth
 
 FORECAST_KEYS = ("threshold_sigma", "check", "mc_objects", "distant", "local", "anchor")
 FORECAST_DEFAULTS = {"threshold_sigma": 3.0, "check": 40, "mc_objects": 20000}
@@ -191,7 +191,8 @@ def _parse_simulated(sim_raw):
     if sim_raw["sample"]:
         return parse_sim_config(sim_raw)
     placeholder = {"name": "_", "n": 1, "z_range": [0.0, 1.0], "method": "dynamical"}
-    return replace(parse_sim_config({**sim_raw, "sample": [placeholder]}), samples=())
+    checked = parse_sim_config({**sim_raw, "truth": {}, "sample": [placeholder]})  # top-level keys
+    return replace(checked, truth=parse_truth(sim_raw.get("truth")), samples=())
 
 
 def _forecast_options(table):
