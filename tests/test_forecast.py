@@ -13,6 +13,8 @@ from cosmogrow.data.readers import write_catalog
 from cosmogrow.forecast import scans
 from cosmogrow.forecast.fisher import exclusion_power, expected_information, population
 from cosmogrow.forecast.run import parameter_widths
+from cosmogrow.report.forecast_figures import forecast_figure
+from cosmogrow.report.forecast_markdown import forecast_markdown
 from cosmogrow.forecast.scans import base_sizes
 from cosmogrow.report.html import build_report
 from cosmogrow.simulation.population import simulate_population
@@ -119,6 +121,17 @@ def test_degenerate_plan_follows_offset_prior_and_anchor_collapses_it():
     assert 10 < needed["n"] < 300
     below = {**base_sizes(plan), "anchor": int(needed["n"] * 0.9)}
     assert info.sigma_k(below, offset_scale=np.inf) > 1.1 * info.sigma_k(below, offset_scale=1 / 3)
+
+
+def test_unmeasurable_rows_are_said_so(forecast_dir, tmp_path):
+    # σ_k infinite (in memory) or null (in JSON): k not measurable in that row of a scan
+    result = json.loads((forecast_dir / "forecast.json").read_text())
+    result["scans"]["breaker"][0]["sigma_k_free"] = float("inf")
+    result["scans"]["offset_width"][-1]["sigma_k"] = None
+    text = forecast_markdown(result)
+    assert text.count("∞ (not measurable)") == 2
+    forecast_figure(result, tmp_path / "f.png")
+    assert (tmp_path / "f.png").read_bytes()[:4] == b"\x89PNG"
 
 
 def test_exclusion_power_hand_values():

@@ -12,7 +12,9 @@ _BREAKER_LINES = (("sigma_k_narrow", "offset priors ×⅓", ":"), ("sigma_k", "o
 
 
 def _finite(rows, key):
-    return np.array([np.nan if row.get(key) is None else row[key] for row in rows], dtype=float)
+    """A column of scan rows as floats; None and infinite values (not measurable) become NaN."""
+    values = np.array([np.nan if row.get(key) is None else row[key] for row in rows], dtype=float)
+    return np.where(np.isfinite(values), values, np.nan)
 
 
 def forecast_figure(result, path):

@@ -1,8 +1,12 @@
 """summary.md of a forecast (docs/method.md#forecast), also printed by the forecast command."""
 
+import math
+
 
 def _num(value, digits=3):
-    return "∞ (not measurable)" if value is None else f"{value:.{digits}f}"
+    if value is None or not math.isfinite(value):
+        return "∞ (not measurable)"
+    return f"{value:.{digits}f}"
 
 
 def _pct(value):
