@@ -1,7 +1,7 @@
 """Generate the bundled demo catalogues from analysis/demo_scenario.toml (invented scenario).
 
-Writes demo_data/<sample>.csv, demo_data/truth.json and demo_data/run.toml (the run configuration
-that declares each sample's selection). Deterministic: the scenario's seed fixes every number.
+Writes demo_data/<sample>.csv, demo_data/truth.json, demo_data/run.toml (the run configuration
+that declares each sample's selection) and demo_data/forecast.toml (the programme as a forecast plan). Deterministic: the scenario's seed fixes every number.
 Run: .venv/bin/python analysis/make_demo_data.py
 """
 
@@ -24,6 +24,8 @@ def toml_value(value):
         return "{ " + ", ".join(f"{k} = {toml_value(v)}" for k, v in value.items()) + " }"
     if isinstance(value, str):
         return json.dumps(value)
+    if isinstance(value, list):
+        return "[" + ", ".join(toml_value(v) for v in value) + "]"
     return repr(value)
 
 
@@ -44,6 +46,37 @@ compare_plain = true
 n = 60
 prior = [-1.0, 4.0]
 """
+
+
+FORECAST_HEAD = """# Forecast plan of the demo programme (written by analysis/make_demo_data.py): the four invented
+# surveys as designed, fitted as in run.toml. Run: cosmogrow forecast --config forecast.toml
+seed = {seed}
+
+[forecast]
+threshold_sigma = 3.0
+check = 20            # mocks fitted to check the predicted width of k
+mc_objects = 10000    # simulated selected objects per sample for the expected information
+anchor = "brisk"      # the local virial sample that ties virial masses to dynamical ones
+
+[model]
+form = "ratio"
+zero_point_method = "dynamical"
+"""
+
+
+def forecast_plan_text(scenario):
+    """The demo programme as a forecast plan: the scenario's truth and samples plus [model] and
+    [forecast] tables."""
+    lines = [FORECAST_HEAD.format(seed=scenario["seed"])]
+    for table in ("cosmology", "truth"):
+        lines.append(f"[{table}]")
+        lines += [f"{key} = {toml_value(value)}" for key, value in scenario[table].items()]
+        lines.append("")
+    for spec in scenario["sample"]:
+        lines.append("[[sample]]")
+        lines += [f"{key} = {toml_value(value)}" for key, value in spec.items()]
+        lines.append("")
+    return "\n".join(lines)
 
 
 def write_remnants(seed):
@@ -73,6 +106,7 @@ def main():
                   f"selection = {toml_value(spec['selection'])}", ""]
     (OUT / "run.toml").write_text("\n".join(lines))
     (OUT / "campaign.toml").write_text(CAMPAIGN)
+    (OUT / "forecast.toml").write_text(forecast_plan_text(scenario))
     write_remnants(scenario["seed"])
     (OUT / "truth.json").write_text(json.dumps(to_jsonable(truth), indent=2) + "\n")
     print(f"wrote {len(catalog)} objects in {len(scenario['sample'])} samples to {OUT}", file=sys.stderr)

@@ -20,7 +20,8 @@ EXIT_OK = 0
 EXIT_BAD_INPUT = 2
 EXIT_NOT_CONVERGED = 3
 
-COMMANDS = ("init", "fit", "simulate", "inject", "nulltest", "challenge", "budget", "remnants", "report", "demo")
+COMMANDS = ("init", "fit", "simulate", "inject", "nulltest", "challenge", "forecast", "budget", "remnants",
+            "report", "demo")
 
 
 class OneLineParser(argparse.ArgumentParser):

@@ -5,6 +5,7 @@ Kinds (and the file that marks them):
   campaign   summary.json with per-k "recovery" blocks, or results.parquet
   nulltests  nulltests.json
   challenge  challenge.json
+  forecast   forecast.json
   budget     budget.json
   remnants   remnants.json
 Every file is checked before it is drawn (`validation`): a file that cannot be parsed, a key of the
@@ -184,7 +185,8 @@ def collect_folders(paths):
         children = [child for child in children if child is not None]
         if not children:
             raise InputError(folder, "holds no recognisable results (expected summary.json, "
-                                     "nulltests.json, challenge.json, budget.json or remnants.json)")
+                                     "nulltests.json, challenge.json, forecast.json, budget.json or "
+                                     "remnants.json)")
         found.extend(children)
     return found
 

@@ -8,7 +8,7 @@ function listing its warnings, an optional one-line glance for the headline, and
 from dataclasses import dataclass
 from typing import Callable
 
-from . import budget_section, calibration_section, checks_section, fit_section
+from . import budget_section, calibration_section, checks_section, fit_section, forecast_section
 from .style import PALETTE
 
 TEAL, OCHRE, PLUM, SLATE, BRICK, OLIVE = PALETTE
@@ -72,6 +72,13 @@ SECTIONS = (
                 checks_section.challenge_glance, (
                     ("challenge.png", "The observed k among mocks simulated under the claimed k and under "
                                       "k = 0, fitted plainly and with the selection modelled.", True),)),
+    SectionKind("forecast", "forecast.json", "forecast",
+                "Forecast: how well would the planned observations measure k?", TEAL,
+                forecast_section.forecast_context, forecast_section.forecast_warnings,
+                forecast_section.forecast_glance, (
+                    ("forecast.png", "Forecast σ(k) and power against the number of objects (all samples "
+                                     "scaled), with the mocks' spread of k at the planned size; σ(k) against "
+                                     "the size of the sample that breaks the k-offset degeneracy.", True),)),
     SectionKind("budget", "budget.json", "budget", "Dark-energy budget of coupled black holes", OCHRE,
                 budget_section.budget_context, budget_section.budget_warnings,
                 budget_section.budget_glance, (

@@ -54,7 +54,16 @@ _REMNANTS = {
     "objects": "list!", "objects.*": "mapping!", "objects.*.mass": "number", "objects.*.birth_mass": "number",
     "objects.*.p_above_limit": "number", "assumptions": "texts", "warnings": "texts",
 }
-EXPECTED = {"fit": _FIT, "campaign": _CAMPAIGN, "nulltests": _NULLTESTS, "challenge": _CHALLENGE,
+_FORECAST = {
+    "sigma_k": "number!", "k_true": "number!", "threshold_sigma": "number!",
+    "power_exclude_k0": "number", "power_exclude_k3": "number",
+    "samples": "mapping", "samples.*": "mapping!", "samples.*.n": "count", "samples.*.method": "text",
+    "samples.*.z_range": "pair", "samples.*.information_share": "number", "samples.*.sigma_k_without": "real",
+    "check": "mapping", "check.n": "count", "check.std": "number", "check.std_error": "number",
+    "check.mean": "number", "scans": "mapping", "scans.*": "list", "degeneracy": "mapping",
+    "degeneracy.anchor": "text", "degeneracy.method": "text", "warnings": "texts", "caveats": "texts",
+}
+EXPECTED = {"forecast": _FORECAST, "fit": _FIT, "campaign": _CAMPAIGN, "nulltests": _NULLTESTS, "challenge": _CHALLENGE,
             "budget": _BUDGET, "remnants": _REMNANTS}
 
 _WORDS = {"number": "a finite number", "real": "a number", "count": "a whole number ≥ 0",

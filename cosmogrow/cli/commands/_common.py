@@ -12,7 +12,7 @@ from ...errors import ConfigError, InputError
 #: The file that marks a folder as holding a command's results (see outputs.check_out_dir).
 OUT_MARKERS = {"fit": "chain.h5", "simulate": "truth.json", "inject": "campaign.json",
                "nulltest": "nulltests.json", "challenge": "challenge.json", "budget": "budget.json",
-               "remnants": "remnants.json"}
+               "remnants": "remnants.json", "forecast": "forecast.json"}
 
 
 def seed_type(text):

@@ -18,7 +18,8 @@ def default_data_dir():
 def register(subparsers):
     parser = subparsers.add_parser("demo", help="run every stage on the bundled demo data",
                                    description="Fit (plain and selection-aware), calibrate, run null "
-                                               "tests, challenge k = 3, budget, remnants, report.")
+                                               "tests, challenge k = 3, forecast the programme, "
+                                               "budget, remnants, report.")
     parser.add_argument("--out", default="demo_results", help="results folder (default: demo_results)")
     parser.add_argument("--data", help="demo data folder (default: the checkout's demo_data/)")
     parser.add_argument("--only-fit", action="store_true", help="run only the two fits and the report")
@@ -40,6 +41,8 @@ def stages(data, out, only_fit=False):
                             "--repeats", "20", "--quiet"]),
             ("challenge of k = 3", ["challenge", "--config", run_toml, "--claim", "3",
                                     "--out", str(out / "challenge"), "--replicas", "40", "--quiet"]),
+            ("forecast of the programme", ["forecast", "--config", str(data / "forecast.toml"),
+                                           "--out", str(out / "forecast"), "--quiet"]),
             ("dark-energy budget", ["budget", "--posterior", fit_dir, "--out", str(out / "budget")]),
             ("stellar remnants", ["remnants", str(data / "remnants.csv"), "--posterior", fit_dir,
                                   "--out", str(out / "remnants")]),

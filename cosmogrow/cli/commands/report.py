@@ -9,8 +9,8 @@ EXIT_INPUT_PROBLEMS = 3
 def register(subparsers):
     parser = subparsers.add_parser(
         "report", help="collect results folders into one self-contained HTML page",
-        description="Collect the results folders of fit, inject, nulltest, challenge, budget and "
-                    "remnants into one HTML page (figures embedded, no network access needed). A "
+        description="Collect the results folders of fit, inject, nulltest, challenge, forecast, "
+                    "budget and remnants into one HTML page (figures embedded, no network access needed). A "
                     "folder without results of its own stands for its result subfolders. Every file "
                     "read is checked; an unreadable or malformed one is named in the page's warnings "
                     "and the exit code is 3.")
