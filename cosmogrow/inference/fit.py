@@ -194,7 +194,7 @@ def assess(config, data, model, approx, chain, verdicts=None):
     return {"significance": significance_block(rows, model), "sensitivity": rows,
             "verdicts": judged, "headline": headline(judged),
             "information": describe_information(model, approx, data.catalog),
-            "identifiability": {**guard, "threshold": options["threshold"]},
+            "identifiability": guard,
             "warnings": [identifiability_warning(guard), undeclared_methods_warning(data.catalog)]}
 
 
