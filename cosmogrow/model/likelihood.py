@@ -12,6 +12,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..errors import ConfigError
+from .layout import OffsetGroup, ParameterLayout
 
 DEFAULT_PRIORS = {
     "k": (-10.0, 10.0),
@@ -159,34 +160,25 @@ class CoupledGrowthModel:
     # ----- parameter layout -------------------------------------------------------------
     def _build_layout(self):
         d = self.design
-        names = ["k", "alpha"] + (["beta"] if self.relation else [])
-        scatter = (["sigma_int"] if len(d.scatter_names) == 1
-                   else [f"sigma_int[{s}]" for s in d.scatter_names])
-        offsets = [f"delta[{m}]" for m in d.method_names[1:]]
-        outliers = ["f_out", "sigma_out"] if self.options.outliers else []
-        self.names = tuple(names + scatter + offsets + outliers)
-        self.ndim = len(self.names)
-        self._i_beta = 2 if self.relation else None
-        self._i_scatter = np.arange(len(names), len(names) + len(scatter))
-        self._i_delta = np.arange(self._i_scatter[-1] + 1, self._i_scatter[-1] + 1 + len(offsets))
-        lows, highs = [], []
-        for name in self.names:
-            base = name.split("[")[0]
-            low, high = self.priors.get(base, (-np.inf, np.inf))
-            lows.append(low)
-            highs.append(high)
-        self.lower = np.array(lows)
-        self.upper = np.array(highs)
-        widths = self.options.method_offset_width
-        if isinstance(widths, dict):
-            default = widths.get("default", 0.3)
-            self.delta_widths = np.array([widths.get(m, default) for m in d.method_names[1:]], dtype=float)
-        else:
-            self.delta_widths = np.full(len(offsets), float(widths))
+        groups = (OffsetGroup("method", d.method_names),)
+        self.layout = ParameterLayout(relation=self.relation, scatter_names=d.scatter_names,
+                                      offset_groups=groups, outliers=bool(self.options.outliers))
+        self.lower, self.upper = self.layout.bounds(self.priors)
+        self.offset_widths = np.concatenate(
+            [offset_widths(self.options.method_offset_width, d.method_names[1:])])
 
     @property
-    def index_k(self):
-        return 0
+    def names(self) -> tuple:
+        """Parameter names in vector order (see `ParameterLayout`)."""
+        return self.layout.names
+
+    @property
+    def ndim(self) -> int:
+        return self.layout.ndim
+
+    @property
+    def index_k(self) -> int:
+        return self.layout.index_k
 
     def prior_is_proper_in_k(self):
         low, high = self.priors["k"]
@@ -200,9 +192,10 @@ class CoupledGrowthModel:
         out = np.where(inside, 0.0, -np.inf)
         uniform = np.isfinite(self.lower) & np.isfinite(self.upper)
         out = out - np.sum(np.log(self.upper[uniform] - self.lower[uniform]))
-        if self._i_delta.size:
-            z = theta[:, self._i_delta] / self.delta_widths
-            out = out - 0.5 * np.sum(z**2 + LOG_2PI + 2 * np.log(self.delta_widths), axis=1)
+        offsets = self.layout.offsets
+        if offsets.stop > offsets.start:
+            z = theta[:, offsets] / self.offset_widths
+            out = out - 0.5 * np.sum(z**2 + LOG_2PI + 2 * np.log(self.offset_widths), axis=1)
         return out
 
     def log_likelihood(self, theta):
@@ -233,10 +226,12 @@ class CoupledGrowthModel:
         k_eff (k - beta gamma), sigma2 (intrinsic variance per object) and delta (offset per object)."""
         theta = np.asarray(theta, dtype=float)
         d = self.design
-        sig2 = theta[self._i_scatter] ** 2
-        delta_all = np.concatenate([[0.0], theta[self._i_delta]])
-        beta = theta[2] if self.relation else 1.0
-        return {"alpha": theta[1], "beta": beta, "k_eff": theta[0] - beta * self.gamma,
+        layout = self.layout
+        sig2 = theta[layout.scatter] ** 2
+        delta_all = np.concatenate([[0.0], theta[layout.group_slice("method")]])
+        beta = theta[layout.index_beta] if self.relation else 1.0
+        return {"alpha": theta[layout.index_alpha], "beta": beta,
+                "k_eff": theta[layout.index_k] - beta * self.gamma,
                 "sigma2": sig2[d.scatter_index] if sig2.size > 1 else np.full(len(d.x), sig2[0]),
                 "delta": delta_all[d.method_index]}
 
@@ -248,13 +243,13 @@ class CoupledGrowthModel:
         """Per object and walker: latent mean mu_true, offset delta, latent variance var_lat and the
         total variance of m_obs (docs/method.md#model)."""
         d = self.design
-        k, alpha = theta[:, 0:1], theta[:, 1:2]
-        beta = theta[:, 2:3] if self.relation else 1.0
-        sig2 = theta[:, self._i_scatter] ** 2
+        layout = self.layout
+        k, alpha = _column(theta, layout.index_k), _column(theta, layout.index_alpha)
+        beta = _column(theta, layout.index_beta) if self.relation else 1.0
+        sig2 = theta[:, layout.scatter] ** 2
         sig2_obj = sig2 if sig2.shape[1] == 1 else sig2[:, d.scatter_index]
-        if self._i_delta.size:
-            delta_all = np.concatenate([np.zeros((len(theta), 1)), theta[:, self._i_delta]], axis=1)
-            delta = delta_all[:, d.method_index]
+        if len(layout.group("method").free_labels):
+            delta = layout.per_object_offsets(theta, "method", d.method_index)
         else:
             delta = 0.0
         mu_true = alpha + beta * d.s_centred - (k - beta * self.gamma) * d.x
@@ -279,8 +274,8 @@ class CoupledGrowthModel:
         resid2 = (d.m_obs - mu_true - delta) ** 2
         log_like = -0.5 * (resid2 / var + np.log(var) + LOG_2PI)
         if self.options.outliers:
-            f_out = theta[:, -2:-1]
-            var_out = var + theta[:, -1:] ** 2
+            f_out = _column(theta, self.layout.index_f_out)
+            var_out = var + _column(theta, self.layout.index_sigma_out) ** 2
             log_out = -0.5 * (resid2 / var_out + np.log(var_out) + LOG_2PI)
             log_like = np.logaddexp(np.log1p(-f_out) + log_like, np.log(f_out) + log_out)
         if self.selection is not None:
@@ -298,15 +293,16 @@ class CoupledGrowthModel:
         coef, *_ = np.linalg.lstsq(design_matrix, target, rcond=None)
         resid = target - design_matrix @ coef
         scatter = np.sqrt(max(np.var(resid) - np.mean(self._ev_ratio), 0.05**2))
+        layout = self.layout
         theta = np.empty(self.ndim)
-        theta[0] = coef[2 if self.relation else 1]
-        theta[1] = coef[0]
+        theta[layout.index_k] = coef[2 if self.relation else 1]
+        theta[layout.index_alpha] = coef[0]
         if self.relation:
-            theta[2] = coef[1]
-        theta[self._i_scatter] = scatter
-        theta[self._i_delta] = coef[(3 if self.relation else 2):]
+            theta[layout.index_beta] = coef[1]
+        theta[layout.scatter] = scatter
+        theta[layout.offsets] = coef[(3 if self.relation else 2):]
         if self.options.outliers:
-            theta[-2:] = (0.05, 1.0)
+            theta[layout.outlier] = (0.05, 1.0)
         return np.clip(theta, self.lower + 1e-3, self.upper - 1e-3)
 
 
@@ -321,6 +317,7 @@ class GaussianMoments:
 
     def __init__(self, model):
         d = model.design
+        layout = model.layout
         self.model = model
         n_methods = len(d.method_names) - 1
         dummies = [(d.method_index == j + 1).astype(float) for j in range(n_methods)]
@@ -328,13 +325,14 @@ class GaussianMoments:
             columns = [np.ones_like(d.x), d.s_centred + model.gamma * d.x, -d.x] + dummies
             self.offset = float(np.mean(d.m_obs))
             target = d.m_obs - self.offset
-            self.linear_index = [1, 2, 0] + list(model._i_delta)
+            self.linear_index = ([layout.index_alpha, layout.index_beta, layout.index_k]
+                                 + list(layout.offset_indices))
         else:
             columns = [np.ones_like(d.x), -d.x] + dummies
             target = d.m_obs - d.s_centred - model.gamma * d.x
             self.offset = float(np.mean(target))
             target = target - self.offset
-            self.linear_index = [1, 0] + list(model._i_delta)
+            self.linear_index = [layout.index_alpha, layout.index_k] + list(layout.offset_indices)
         design_matrix = np.column_stack(columns)
         p = design_matrix.shape[1]
         self.upper = np.triu_indices(p)
@@ -351,10 +349,11 @@ class GaussianMoments:
 
     def log_likelihood(self, theta):
         model = self.model
-        sig2 = theta[:, model._i_scatter] ** 2
+        layout = model.layout
+        sig2 = theta[:, layout.scatter] ** 2
         sig2_obj = sig2 if self._group_matrix is None else sig2 @ self._group_matrix
         if model.relation:
-            var = sig2_obj + self._m_err2 + theta[:, 2:3] ** 2 * self._s_err2
+            var = sig2_obj + self._m_err2 + _column(theta, layout.index_beta) ** 2 * self._s_err2
         else:
             var = sig2_obj + self._ev_ratio
         log_det = np.log(var).sum(axis=1)
@@ -369,3 +368,17 @@ class GaussianMoments:
         cross_y = np.sum(lin * sums[:, n_cross:n_cross + p], axis=1)
         chi2 = sums[:, -1] - 2 * cross_y + quad
         return -0.5 * (chi2 + log_det + self.n_obj * LOG_2PI)
+
+
+def _column(theta, index):
+    """Column `index` of a (n_walkers, ndim) array, kept two-dimensional for broadcasting."""
+    return theta[:, index:index + 1]
+
+
+def offset_widths(setting, labels):
+    """Gaussian prior widths (dex) of the offsets of `labels`: one number for all, or a table
+    label -> width with an optional "default" (0.3 dex when absent)."""
+    if isinstance(setting, dict):
+        default = setting.get("default", 0.3)
+        return np.array([setting.get(label, default) for label in labels], dtype=float)
+    return np.full(len(labels), float(setting))
