@@ -44,19 +44,19 @@ def design_truth(model, theta_map, k):
     Returns
     -------
     dict with k, alpha (log10 Msun), beta, sigma_int (dex; a dict per sample when the scatter is
-    per sample), delta (dict method -> offset in dex, the zero-point method 0), gamma, s_pivot
+    per sample), delta (dict method -> offset in dex, the zero-point method 0), delta_host (dict
+    host type -> shift in dex, the zero-point type 0; empty without host types), gamma, s_pivot
     (log10 Msun), z_ref, and f_out / sigma_out when the model has outliers.
     """
-    values = dict(zip(model.names, np.asarray(theta_map, dtype=float).tolist()))
-    design = model.design
-    if "sigma_int" in values:
-        sigma_int = values["sigma_int"]
-    else:
-        sigma_int = {name: values[f"sigma_int[{name}]"] for name in design.scatter_names}
-    delta = {design.method_names[0]: 0.0}
-    delta.update({name: values[f"delta[{name}]"] for name in design.method_names[1:]})
+    layout = model.layout
+    theta = np.asarray(theta_map, dtype=float)
+    values = layout.to_dict(theta)
+    scatter = layout.scatter_by_name(theta)
+    sigma_int = scatter if len(scatter) > 1 else next(iter(scatter.values()))
+    delta = layout.offsets_by_label(theta, "method")
     truth = {"k": float(k), "alpha": values["alpha"], "beta": values.get("beta", 1.0),
-             "sigma_int": sigma_int, "delta": delta, "gamma": float(model.gamma),
+             "sigma_int": sigma_int, "delta": delta,
+             "delta_host": layout.offsets_by_label(theta, "host_type"), "gamma": float(model.gamma),
              "s_pivot": float(model.options.log_mstar_pivot), "z_ref": float(model.options.z_ref)}
     if "f_out" in values:
         truth.update(f_out=values["f_out"], sigma_out=values["sigma_out"])

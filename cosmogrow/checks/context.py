@@ -43,8 +43,8 @@ class Fitter:
     selection_aware : bool, model the declared selection (False: the plain likelihood)
 
     Calling it with a catalogue returns ``{"k", "k_std", "converged"}`` (`replicas.fit_replica`).
-    Samples absent from the catalogue lose their selection; a configured zero-point method absent
-    from it is replaced by the automatic choice. With `selection_catalog` (same rows, other
+    Samples absent from the catalogue lose their selection; a configured zero-point method or host
+    type absent from it is replaced by the automatic choice. With `selection_catalog` (same rows, other
     redshifts or labels) the selection thresholds are computed from that catalogue instead.
     """
 
@@ -60,8 +60,10 @@ class Fitter:
     def _config_for(self, catalog):
         options = self.config.model
         if options.zero_point_method and options.zero_point_method not in catalog.method_names:
-            return replace(self.config, model=replace(options, zero_point_method=None))
-        return self.config
+            options = replace(options, zero_point_method=None)
+        if options.zero_point_host_type and options.zero_point_host_type not in catalog.host_type_names:
+            options = replace(options, zero_point_host_type=None)
+        return self.config if options is self.config.model else replace(self.config, model=options)
 
     def _selections_for(self, catalog):
         present = set(catalog.sample_names)

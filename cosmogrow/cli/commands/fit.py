@@ -92,7 +92,8 @@ def write_fit_outputs(folder, config, data, result):
              k=samples[:, result.model.index_k], log_prob=result.chain.log_prob)
     corner_figure(samples, names, folder / "corner.png")
     relation_figure(data.catalog, summary, config.model, folder / "relation.png")
-    offsets = {name[len("delta["):-1]: row["median"] for name, row in summary["parameters"].items()
-               if name.startswith("delta[")}
-    offsets_figure(data.catalog, summary, samples[:, 0], config.model, folder / "offsets.png", offsets)
+    layout = result.model.layout
+    medians = layout.from_dict({name: row["median"] for name, row in summary["parameters"].items()})
+    offsets_figure(data.catalog, summary, samples[:, layout.index_k], config.model, folder / "offsets.png",
+                   layout.offsets_by_label(medians, "method"), layout.offsets_by_label(medians, "host_type"))
     crosscheck_figure(summary.get("crosscheck"), summary["k"], folder / "crosscheck.png")
