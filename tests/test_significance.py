@@ -206,3 +206,37 @@ def test_verdict_options_validate_and_merge_claims():
         verdict_options({"sigma": 3}, "run.toml")
     with pytest.raises(ConfigError, match=r"verdicts.claims: expected finite numbers, got 'x'"):
         verdict_options({"claims": ["x"]}, "run.toml")
+
+
+def test_host_type_offsets_enter_constraints_labels_and_information():
+    # Truth k = 0; local quiescent hosts, distant AGN hosts 0.6 dex lower in M_BH/M* (inside the
+    # 0.5-1 dex of Reines & Volonteri 2015, ApJ 813, 82), one mass method: the host-type offset is
+    # confounded with redshift, so the k = 3 verdict depends on its constraint.
+    rng = np.random.default_rng(9)
+    cat = mock_catalog(rng, 0.0, samples=((0.02, 80, "dynamical"), (1.5, 100, "dynamical")), z_spread=0.03)
+    types = np.where(cat.sample == "S0", "quiescent", "agn").astype(object)
+    cat = cat.replace(host_type=types, log_mbh=cat.log_mbh - 0.6 * (types == "agn"))
+    opts = ModelOptions(zero_point_host_type="quiescent", host_offset_width=0.5)
+    model = CoupledGrowthModel(build_design(cat, opts), opts)
+    assert model.names[-1] == "delta_host[agn]"
+    approx = laplace(model)
+    k_draws = rng.multivariate_normal(approx.theta, approx.covariance, 2000)[:, 0]
+    rows = sensitivity_rows(model, approx, k_draws, [0.0, 3.0], n_draws=800, seed=1)
+    assert rows[0]["label"] == "offsets constrained by N(0, 0.17 dex)"
+    verdicts = verdicts_from_rows(rows, [0.0, 3.0], 3.0, 0.5, "the host-type offsets")
+    assert verdicts[1]["verdict"] == DEPENDS and "host-type offsets" in verdicts[1]["reason"]
+    block = describe_information(model, approx, cat)
+    assert set(block["per_host_type"]) == {"quiescent", "agn"}
+    # each host type lives at one redshift only: neither constrains k alone
+    assert all(row["alone"] < 0.2 for row in block["per_host_type"].values())
+
+
+def test_labels_name_each_kind_when_widths_differ():
+    from cosmogrow.inference.sensitivity import offset_label, offset_subject
+    cat = mock_catalog(np.random.default_rng(1), 0.0, samples=PARTIAL)
+    cat = cat.replace(host_type=np.where(cat.sample == "S2", "agn", "quiescent").astype(object))
+    model = make_model(cat, zero_point_host_type="quiescent", host_offset_width=1.0)
+    assert offset_label(model) == ("offsets constrained by N(0, 0.3 dex) for mass methods and "
+                                   "N(0, 1 dex) for host types")
+    assert offset_label(model, 3.0).endswith("N(0, 3 dex) for host types")
+    assert offset_subject(model) == "the mass-method and host-type offsets"

@@ -23,7 +23,7 @@ from .summary import (convergence_block, degeneracy_warnings, describe_parameter
                       describe_samples, hypothesis_tests, offset_sensitivity)
 from .guards import identifiability, identifiability_warning, undeclared_methods_warning
 from .information import describe_information
-from .sensitivity import offset_constraints, sensitivity_rows, significance_block
+from .sensitivity import common_width, offset_subject, sensitivity_rows, significance_block
 from .verdicts import headline, verdict_options, verdicts_from_rows
 from ..seeding import child_seed
 
@@ -186,10 +186,8 @@ def assess(config, data, model, approx, chain, verdicts=None):
     options = verdicts or verdict_options(config.raw.get("verdicts", {}), config.source)
     k_draws = chain.samples[:, model.index_k]
     rows = sensitivity_rows(model, approx, k_draws, options["k_refs"], seed=child_seed(config.seed, 2))
-    widths = offset_constraints(model)[1]
-    base_width = float(widths[0]) if widths.size and np.all(widths == widths[0]) else None
-    judged = verdicts_from_rows(rows, options["k_refs"], options["threshold"], base_width,
-                                "the mass-method offsets")
+    judged = verdicts_from_rows(rows, options["k_refs"], options["threshold"], common_width(model),
+                                offset_subject(model))
     guard = identifiability(k_draws, model.priors["k"], data.catalog.z)
     return {"significance": significance_block(rows, model), "sensitivity": rows,
             "verdicts": judged, "headline": headline(judged),

@@ -30,21 +30,46 @@ MIN_DRAWS, MAX_DRAWS = 400, 3000
 PROPOSAL_DF = 5
 
 
+_GROUP_WORDS = {"method": "mass methods", "host_type": "host types"}
+
+
 def offset_constraints(model):
-    """Indices and configured prior widths (dex) of every offset parameter of a model."""
-    return np.asarray(model._i_delta, dtype=int), np.asarray(model.delta_widths, dtype=float)
+    """Indices and configured prior widths (dex) of every offset parameter of a model (mass
+    methods and host types)."""
+    return (np.asarray(model.layout.offset_indices, dtype=int),
+            np.asarray(model.offset_widths, dtype=float))
+
+
+def offset_subject(model):
+    """What the offset constraints act on, in words ("the mass-method offsets", ...)."""
+    kinds = [entry.kind for entry in model.layout.offset_entries()]
+    words = [{"method": "mass-method", "host_type": "host-type"}[kind] for kind in dict.fromkeys(kinds)]
+    return f"the {' and '.join(words)} offsets" if words else "the offsets"
+
+
+def common_width(model):
+    """The one configured width (dex) shared by every offset, or None when they differ."""
+    widths = offset_constraints(model)[1]
+    return float(widths[0]) if widths.size and np.all(widths == widths[0]) else None
 
 
 def offset_label(model, scale=1.0):
-    """Plain description of the offset constraint, e.g. "offsets constrained by N(0, 0.3 dex)"."""
-    _, widths = offset_constraints(model)
+    """Plain description of the offset constraint, e.g. "offsets constrained by N(0, 0.3 dex)";
+    per kind when mass-method and host-type widths differ."""
+    index, widths = offset_constraints(model)
     if widths.size == 0:
         return "no offset parameter"
     if scale is None:
         return "offsets unconstrained"
-    values = sorted(set(np.round(widths * scale, 6)))
-    text = ", ".join(f"{w:.2g}" for w in values)
-    return f"offsets constrained by N(0, {text} dex)"
+    if common_width(model) is not None:
+        return f"offsets constrained by N(0, {widths[0] * scale:.2g} dex)"
+    first = model.layout.offsets.start
+    by_kind = {}
+    for entry in model.layout.offset_entries():
+        by_kind.setdefault(entry.kind, set()).add(round(float(widths[entry.index - first] * scale), 6))
+    parts = [f"N(0, {', '.join(f'{w:.2g}' for w in sorted(values))} dex) for {_GROUP_WORDS[kind]}"
+             for kind, values in by_kind.items()]
+    return "offsets constrained by " + " and ".join(parts)
 
 
 class ConstrainedLikelihood:

@@ -84,15 +84,15 @@ def assumptions_table(summary):
 
 
 def information_table(summary):
-    """Shares of the information on k per sample (and per source when given)."""
+    """Shares of the information on k per sample (and per source and host type when given)."""
     info = dig(summary, "information")
     if not isinstance(info, dict):
         return None
     body = []
-    for kind in ("per_sample", "per_source"):
+    for kind, word in (("per_sample", "sample"), ("per_source", "source"), ("per_host_type", "host type")):
         groups = dig(info, kind)
         for name, row in (groups.items() if isinstance(groups, dict) else ()):
-            body.append([f"{kind[4:]} {name}", fmt(dig(row, "n")), _share(dig(row, "loss_if_removed")),
+            body.append([f"{word} {name}", fmt(dig(row, "n")), _share(dig(row, "loss_if_removed")),
                          _share(dig(row, "alone")), _share(dig(row, "fkk_share"))])
     if not body:
         return None
