@@ -7,7 +7,6 @@ from scipy import stats
 
 from cosmogrow.background import get_cosmology
 from cosmogrow.config import ModelOptions
-from cosmogrow.data.catalog import Catalog
 from cosmogrow.errors import ConfigError
 from cosmogrow.model.likelihood import CoupledGrowthModel, build_design, lever_arm
 from cosmogrow.selection.compiled import SelectionSet
@@ -162,3 +161,26 @@ def test_host_offset_and_k_recovered():
     assert np.mean(widths) == pytest.approx(shifts.std(ddof=1), rel=0.15)
     # 68 % intervals: binomial 3 sigma band
     assert abs(np.mean(covered) - 0.683) < 3 * np.sqrt(0.683 * 0.317 / N_MOCKS)
+
+
+@pytest.mark.parametrize("form", ["ratio", "relation"])
+def test_simulator_mean_equals_likelihood_mean(form):
+    """The simulator's true mass without scatter is the likelihood's latent mean at the same
+    parameters (host growth, host-type shifts and all), so both use one forward model."""
+    from cosmogrow.simulation.plan import parse_truth
+    from cosmogrow.simulation.population import true_masses
+
+    cat = typed_catalog()
+    cat = cat.replace(log_mstar_err=np.zeros(len(cat)))  # the likelihood's host is then the observed one
+    opts = ModelOptions(form=form, host_errors="first_order", host_growth=0.3, z_ref=0.1,
+                        log_mstar_pivot=10.8, zero_point_host_type="quiescent")
+    model = CoupledGrowthModel(build_design(cat, opts), opts)
+    beta = 0.8 if form == "relation" else 1.0
+    values = {"k": 1.7, "alpha": 8.3, "beta": beta, "sigma_int": 0.3, "delta[reverberation]": 0.1,
+              "delta[virial]": -0.2, "delta_host[agn]": AGN_SHIFT}
+    theta = model.layout.from_dict({name: values[name] for name in model.names})
+    truth = parse_truth({"k": 1.7, "alpha": 8.3, "beta": beta, "sigma_int": 0.0, "gamma": 0.3,
+                         "z_ref": 0.1, "s_pivot": 10.8, "delta_host": {"agn": AGN_SHIFT}})
+    shift = np.array([truth.host_offset_of(t) for t in cat.host_type])
+    simulated = true_masses(truth, cat.log_mstar, cat.z, 0.0, np.random.default_rng(0), shift)
+    np.testing.assert_allclose(model.latent_mean(theta)[0], simulated, rtol=0, atol=1e-12)

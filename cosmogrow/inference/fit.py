@@ -12,12 +12,11 @@ from ..data.catalog import Catalog
 from ..data.readers import read_catalogs
 from .crosscheck import crosscheck_options, crosscheck_warnings, run_crosscheck
 from ..errors import ConfigError
-from .laplace import find_map, laplace, start_walkers
+from .k_estimate import sample_posterior
+from .laplace import find_map, laplace
 from ..model.hostprior import parent_host_priors
 from ..model.likelihood import CoupledGrowthModel, build_design
 from ..outputs import package_versions
-from .mcmc import default_walkers, run_ensemble
-from ..seeding import make_rng
 from ..selection.compiled import SelectionSet, build_selection
 from .summary import (convergence_block, degeneracy_warnings, describe_parameters,
                       describe_samples, hypothesis_tests, offset_sensitivity)
@@ -114,15 +113,9 @@ def run_fit(config, data, *, chain_path=None, on_check=None, selection_aware=Tru
     FitResult
     """
     model = build_model(config, data, selection_aware=selection_aware)
-    seed = np.random.SeedSequence(config.seed)
-    walker_seed, sampler_seed = seed.spawn(2)
     approx = laplace(model)
-    n_walkers = default_walkers(model.ndim, config.sampler.walkers)
-    start = start_walkers(model, approx, n_walkers, make_rng(walker_seed))
-    chain = run_ensemble(model.log_prob, start, max_steps=config.sampler.max_steps,
-                         autocorr_factor=config.sampler.autocorr_factor,
-                         check_every=config.sampler.check_every, chain_path=chain_path,
-                         seed=sampler_seed, on_check=on_check)
+    chain = sample_posterior(model, approx, config.sampler, seed=config.seed, chain_path=chain_path,
+                             on_check=on_check)
     summary = summarise(config, data, model, approx, chain, verdicts)
     return FitResult(model=model, laplace=approx, chain=chain, summary=summary)
 

@@ -143,6 +143,8 @@ def reweighted_draws(objective, start, n_draws, rng):
     draws = np.atleast_2d(proposal.rvs(size=n_draws, random_state=rng))
     log_weight = objective.log_prob(draws) - proposal.logpdf(draws)
     log_weight[~np.isfinite(log_weight)] = -np.inf
+    if not np.any(np.isfinite(log_weight)):  # no draw inside the ranges: report no effective draw
+        return draws, np.full(len(draws), 1.0 / len(draws)), 0.0
     weights = np.exp(log_weight - np.max(log_weight))
     weights /= weights.sum()
     return draws, weights, float(1.0 / np.sum(weights**2))
@@ -204,7 +206,7 @@ def sensitivity_rows(model, approx, k_draws, k_refs, *, n_draws=None, seed=None)
                          method, ess))
     if has_offsets:
         rows.append(_unconstrained_row(model, approx, k_refs, k_range))
-    rows += [_k_range_row(k_draws, k_range, factor, configured, model) for factor in (0.5, 2.0)]
+    rows += [_k_range_row(k_draws, k_range, factor, configured) for factor in (0.5, 2.0)]
     return rows
 
 
@@ -220,7 +222,7 @@ def _unconstrained_row(model, approx, k_refs, k_range):
                 "maximum likelihood ± profile curvature (no prior on the offsets, no posterior)")
 
 
-def _k_range_row(k_draws, k_range, factor, sigmas, model):
+def _k_range_row(k_draws, k_range, factor, sigmas):
     """The k prior range scaled about its centre: the posterior truncated or extended, B01 rescaled.
 
     For a uniform prior of width W, B01 = W L(k0) / ∫ L dk over the range; a new range W' gives

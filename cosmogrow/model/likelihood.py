@@ -17,6 +17,7 @@ from .design import (  # noqa: F401  (re-exported: the design is built with the 
     Design, build_design, calibrated_hosts, choose_zero_point, choose_zero_point_host_type, lever_arm,
     observed_host_moments)
 from .layout import OffsetGroup, ParameterLayout
+from .mean import latent_mean
 
 DEFAULT_PRIORS = {
     "k": (-10.0, 10.0),
@@ -153,12 +154,24 @@ class CoupledGrowthModel:
         """Log likelihood of every object at one parameter vector, shape (N,)."""
         return self._log_likelihood_chunk(np.atleast_2d(theta), reduce=False)[0]
 
+    def latent_mean(self, theta) -> np.ndarray:
+        """Mean latent log M_BH (log10 Msun) at the observed epoch, shape (n_walkers, N): the
+        shared forward model `model.mean.latent_mean` with this model's hosts and offsets."""
+        theta = np.atleast_2d(theta)
+        layout, d = self.layout, self.design
+        beta = _column(theta, layout.index_beta) if self.relation else 1.0
+        k_eff = _column(theta, layout.index_k) - beta * self.gamma
+        # a host-type offset is a real shift of the latent mass, seen by a selection on it
+        host = (layout.per_object_offsets(theta, "host_type", d.host_index)
+                if self._host_offsets else None)
+        return latent_mean(_column(theta, layout.index_alpha), beta, k_eff, d.s_centred, d.x,
+                           host_offset=host)
+
     def _latent(self, theta):
         """Per object and walker: latent mean mu_true, offset delta, latent variance var_lat and the
         total variance of m_obs (docs/method.md#model)."""
         d = self.design
         layout = self.layout
-        k, alpha = _column(theta, layout.index_k), _column(theta, layout.index_alpha)
         beta = _column(theta, layout.index_beta) if self.relation else 1.0
         sig2 = theta[:, layout.scatter] ** 2
         sig2_obj = sig2 if sig2.shape[1] == 1 else sig2[:, d.scatter_index]
@@ -166,9 +179,7 @@ class CoupledGrowthModel:
             delta = layout.per_object_offsets(theta, "method", d.method_index)
         else:
             delta = 0.0
-        mu_true = alpha + beta * d.s_centred - (k - beta * self.gamma) * d.x
-        if self._host_offsets:  # a real shift of the latent mass, seen by a selection on it
-            mu_true = mu_true + layout.per_object_offsets(theta, "host_type", d.host_index)
+        mu_true = self.latent_mean(theta)
         if self.relation:
             var_lat = sig2_obj + beta**2 * self._s_err2
             var = var_lat + self._m_err2

@@ -26,7 +26,8 @@ from ..background import comoving_volume_element, describe
 from ..data.catalog import Catalog
 from ..errors import ConfigError
 from .massfunction import HostMassSampler, inverse_cdf_table
-from ..model.likelihood import calibrated_hosts
+from ..model.likelihood import calibrated_hosts, lever_arm
+from ..model.mean import latent_mean
 from ..seeding import child_seed, make_rng
 from ..selection.compiled import SelectionSet
 from .plan import parse_sim_config, parse_truth
@@ -177,23 +178,24 @@ def _draw_candidates(spec, truth, hosts, redshifts, rng, size):
     """One batch of candidates before selection: z, m_true, log_mbh (observed), log_mstar (observed)."""
     s_true = hosts.draw(size, rng)
     z = redshifts.draw(size, rng)
-    m_true = _true_masses(truth, s_true, z, truth.scatter_of(spec.name), rng,
+    m_true = true_masses(truth, s_true, z, truth.scatter_of(spec.name), rng,
                           truth.host_offset_of(spec.host_type))
     m_obs = m_true + truth.offset_of(spec.method) + spec.log_mbh_err * rng.standard_normal(size)
     s_obs = s_true + spec.log_mstar_err * rng.standard_normal(size)
     return {"z": z, "m_true": m_true, "log_mbh": m_obs, "log_mstar": s_obs}
 
 
-def _true_masses(truth, s_true, z, sigma_int, rng, host_offset=0.0):
+def true_masses(truth, s_true, z, sigma_int, rng, host_offset=0.0):
     """True log M_BH at the observed epoch (log10 Msun) for hosts s_true at redshifts z, with
     host-type shifts `host_offset` (dex)."""
-    x = np.log10((1.0 + z) / (1.0 + truth.z_ref))
+    x = lever_arm(z, truth.z_ref)
     scatter = np.asarray(sigma_int) * rng.standard_normal(len(z))
     if truth.f_out > 0:
         outlier = rng.random(len(z)) < truth.f_out
         scatter = scatter + outlier * truth.sigma_out * rng.standard_normal(len(z))
-    m_ref = truth.alpha + truth.beta * (s_true + truth.gamma * x - truth.s_pivot) + host_offset + scatter
-    return m_ref - truth.k * x
+    # the host at the reference epoch, s + gamma x, so the coupling term is k itself
+    return latent_mean(truth.alpha, truth.beta, truth.k, s_true + truth.gamma * x - truth.s_pivot, x,
+                       host_offset=host_offset, scatter=scatter)
 
 
 def resample_hosts(catalog, truth, selections_by_sample, cosmo, seed=None, *, host_errors="calibrated"):
@@ -265,7 +267,7 @@ def resample_hosts(catalog, truth, selections_by_sample, cosmo, seed=None, *, ho
         copies = int(min(2**round_index, _MAX_COPIES, max(1, _MAX_BATCH // len(pending))))
         rows = np.repeat(pending, copies)
         s_true = host_mean[rows] + host_err[rows] * rng.standard_normal(len(rows))
-        m_true = _true_masses(truth, s_true, catalog.z[rows], sigma[rows], rng, shift[rows])
+        m_true = true_masses(truth, s_true, catalog.z[rows], sigma[rows], rng, shift[rows])
         m_draw = m_true + delta[rows] + catalog.log_mbh_err[rows] * rng.standard_normal(len(rows))
         keep = selection.draw_selected(m_true, m_draw, rng, rows=rows)
         accepted_rows, first = np.unique(rows[keep], return_index=True)
@@ -295,9 +297,9 @@ def _draw_truncated(truth, catalog, selection, rows, host_mean, host_err, sigma,
     """
     from scipy import stats
 
-    x = np.log10((1.0 + catalog.z[rows]) / (1.0 + truth.z_ref))
-    mu = (truth.alpha + truth.beta * (host_mean[rows] + truth.gamma * x - truth.s_pivot) + shift[rows]
-          - truth.k * x)
+    x = lever_arm(catalog.z[rows], truth.z_ref)
+    mu = latent_mean(truth.alpha, truth.beta, truth.k, host_mean[rows] + truth.gamma * x - truth.s_pivot,
+                     x, host_offset=shift[rows])
     var = sigma[rows] ** 2 + truth.beta**2 * host_err[rows] ** 2
     err = catalog.log_mbh_err[rows]
     observed, lim, width = selection.single_mass_cut(rows)
