@@ -24,8 +24,8 @@ from .verdicts import WIDTH_SCALES, k_key
 
 # Importance draws per reweighted row: DRAW_BUDGET object-evaluations, between MIN and MAX draws.
 # σ(k) shrinks as 1/√N, so fewer draws at large N keep the Monte Carlo error far below 0.05 in k.
-DRAW_BUDGET = 4_000_000
-MIN_DRAWS, MAX_DRAWS = 400, 3000
+DRAW_BUDGET = 1_500_000
+MIN_DRAWS, MAX_DRAWS = 400, 6000
 # Student-t proposal for the importance reweighting: heavier tails than the Laplace Gaussian.
 PROPOSAL_DF = 5
 
