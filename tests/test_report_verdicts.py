@@ -62,3 +62,12 @@ def test_latex_table_states_the_constraint_and_the_verdicts():
     assert r"Verdicts: k = 0: depends on assumptions (0.7$\sigma$ to 4.1$\sigma$" in tex
     assert r"Profile likelihood, $k = 3$, data alone ($\sigma$) & $0.300$" in tex
     assert "σ" not in tex
+
+
+def test_malformed_verdict_blocks_are_skipped_not_fatal():
+    from cosmogrow.report.verdict_section import verdict_items
+    for bad in (7, "text", {"k_ref": 3}, [1, None]):
+        broken = {**SUMMARY, "verdicts": bad, "sensitivity": bad, "information": bad, "headline": bad}
+        assert verdict_items(broken) == []
+        assert sigma_text(broken, 3).startswith("5.10 σ")
+        assert assumptions_table(broken) is None and information_table(broken) is None
