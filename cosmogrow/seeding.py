@@ -12,15 +12,6 @@ def make_rng(seed=None):
     return np.random.default_rng(seed)
 
 
-def spawn_seeds(seed, n):
-    """Spawn `n` independent SeedSequences from `seed` (int or SeedSequence).
-
-    The i-th child depends only on (seed, i), so results do not depend on worker count or order.
-    """
-    parent = seed if isinstance(seed, np.random.SeedSequence) else np.random.SeedSequence(seed)
-    return parent.spawn(n)
-
-
 def child_seed(seed, *indices):
     """SeedSequence for job `indices` (e.g. grid point, realisation) of a campaign seeded by `seed`.
 

@@ -47,7 +47,7 @@ def design_truth(model, theta_map, k):
                  delta=layout.offsets_by_label(theta, "method"),
                  delta_host=layout.offsets_by_label(theta, "host_type"), gamma=float(model.gamma),
                  s_pivot=float(model.options.log_mstar_pivot), z_ref=float(model.options.z_ref),
-                 host_priors=getattr(model, "host_priors", None) or None, **outliers)
+                 host_priors=model.host_priors or None, **outliers)
 
 
 def draw_replica(config, data, truth, seed):

@@ -80,7 +80,6 @@ def build_model(config, data, *, selection_aware=True, catalog=None, selection_s
     if selection_aware and any(data.selections.values()):
         selection = SelectionSet.compile(data.selections, source, data.cosmology)
     model = CoupledGrowthModel(build_design(catalog, config.model), config.model, config.priors, selection)
-    model.host_priors = {}
     if model.selection is None or config.model.host_errors != "calibrated":
         return model
     cut = [name for name, models in data.selections.items() if any(m.on != "host" for m in models)]
@@ -90,9 +89,7 @@ def build_model(config, data, *, selection_aware=True, catalog=None, selection_s
         theta, _, _ = find_map(model, theta)
         priors = parent_host_priors(model, catalog, theta, selected, config.model.log_mstar_pivot, priors)
         model = CoupledGrowthModel(build_design(catalog, config.model, priors), config.model,
-                                   config.priors, selection)
-        model.host_priors = priors
-        model.map_start = theta
+                                   config.priors, selection, host_priors=priors, map_start=theta)
     return model
 
 
@@ -145,7 +142,7 @@ def summarise(config, data, model, approx, chain):
                                   for name, models in data.selections.items()},
                       "parent_host_priors": {name: {"mean": mean, "std": float(np.sqrt(var))}
                                              for name, (mean, var) in
-                                             getattr(model, "host_priors", {}).items()}},
+                                             model.host_priors.items()}},
         "crosscheck": crosscheck,
         "warnings": warnings,
         "data": data_overview(data.catalog),

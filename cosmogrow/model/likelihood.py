@@ -43,9 +43,15 @@ class CoupledGrowthModel:
         Uniform ranges overriding DEFAULT_PRIORS (keys k, alpha, beta, sigma_int, f_out, sigma_out).
     selection : object with ``log_correction(mu_true, delta, var_lat, m_obs, m_err)``, optional
         A compiled selection set; None or one without selection gives the plain likelihood.
+    host_priors : {sample: (mean, variance)}, optional
+        The parent host distributions the design was built with (recorded, not used here).
+    map_start : array, optional
+        A known good starting point for the MAP (e.g. from the parent-host rounds of a fit).
+
+    The model is immutable once built: setting an attribute afterwards raises AttributeError.
     """
 
-    def __init__(self, design, options, priors=None, selection=None):
+    def __init__(self, design, options, priors=None, selection=None, *, host_priors=None, map_start=None):
         unknown = set(priors or {}) - set(DEFAULT_PRIORS)
         if unknown:
             raise ConfigError(f"priors: unknown parameter {sorted(unknown)[0]!r}; expected one of "
@@ -60,11 +66,17 @@ class CoupledGrowthModel:
         self._ev_ratio = design.m_err**2 + design.s_err**2
         self._m_err2 = design.m_err**2
         self._s_err2 = design.s_err**2
-        # A known good starting point for the MAP (set by fit.build_model after its host rounds).
-        self.map_start = None
+        self.host_priors = dict(host_priors or {})
+        self.map_start = None if map_start is None else np.array(map_start, dtype=float)
         # Without outliers the Gaussian part always goes through weighted moments; a selection
         # then adds only its correction (`_selection_chunk`).
         self._moments = None if options.outliers else GaussianMoments(self)
+        self._built = True
+
+    def __setattr__(self, name, value):
+        if getattr(self, "_built", False):
+            raise AttributeError(f"CoupledGrowthModel is immutable once built; cannot set {name!r}")
+        super().__setattr__(name, value)
 
     # ----- parameter layout -------------------------------------------------------------
     def _build_layout(self):
