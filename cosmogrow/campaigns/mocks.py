@@ -19,10 +19,11 @@ from ..errors import ConfigError
 from ..inference.fit import FitData, build_model
 from ..inference.k_estimate import CAMPAIGN_MAX_STEPS, MODES, estimate_k
 from ..outputs import sha256_file
+from ..data.catalog import Catalog
 from ..model.truth import Truth
 
 
-def design_truth(model, theta_map, k):
+def design_truth(model, theta_map, k: float) -> Truth:
     """Truth table of a design: the fitted parameters at `theta_map` with k replaced.
 
     Parameters
@@ -50,7 +51,7 @@ def design_truth(model, theta_map, k):
                  host_priors=model.host_priors or None, **outliers)
 
 
-def draw_replica(config, data, truth, seed):
+def draw_replica(config, data: FitData, truth: Truth, seed) -> Catalog:
     """One mock of the data's own design: hosts, redshifts, methods and errors kept, masses redrawn.
 
     Parameters
@@ -69,7 +70,7 @@ def draw_replica(config, data, truth, seed):
                                    host_errors=config.model.host_errors)
 
 
-def draw_simulated(simulator, truth, seed):
+def draw_simulated(simulator: simulate.Simulator, truth: Truth, seed) -> Catalog:
     """One mock of a simulator configuration with its truth replaced by `truth`.
 
     Parameters
@@ -85,7 +86,7 @@ def draw_simulated(simulator, truth, seed):
     return simulator.simulate(seed=seed, truth=truth).catalog
 
 
-def simulation_design(path):
+def simulation_design(path) -> tuple:
     """A simulator configuration file as a design: (Simulator, FitData, Truth).
 
     The FitData has no rows (``catalog=None``): only the samples' selections and the cosmology,
@@ -99,13 +100,13 @@ def simulation_design(path):
     return simulator, data, parsed.truth
 
 
-def replica_data(data, catalog):
+def replica_data(data: FitData, catalog: Catalog) -> FitData:
     """FitData of a mock: the mock's rows with the design's selections and cosmology."""
     return FitData(catalog=catalog, files=[], selections=data.selections, cosmology=data.cosmology)
 
 
-def fit_replica(config, data, catalog, *, mode="fast", selection_aware=True, seed=None,
-                max_steps=CAMPAIGN_MAX_STEPS, n_draws=0):
+def fit_replica(config, data: FitData, catalog: Catalog, *, mode: str = "fast", selection_aware: bool = True,
+                seed=None, max_steps: int = CAMPAIGN_MAX_STEPS, n_draws: int = 0) -> dict:
     """Fit one mock exactly like the data and reduce the result to k.
 
     Parameters

@@ -42,8 +42,19 @@ class FitResult:
     summary: dict
 
 
-def load_data(config):
-    """Read every sample's catalogue and its selection; duplicate ids across files are an error."""
+def load_data(config) -> FitData:
+    """Read every sample's catalogue and its selection; duplicate ids across files are an error.
+
+    Parameters
+    ----------
+    config : config.RunConfig
+
+    Raises
+    ------
+    ConfigError, InputError
+        No catalogue, a bad selection or cross-check table, a sample with two different
+        selections, or a bad file (one line naming file, row, column and value).
+    """
     if not config.samples:
         raise ConfigError(f"{config.source}: no catalogues given (list them on the command line "
                           "or as [[sample]] tables)")
@@ -64,7 +75,8 @@ def load_data(config):
     return FitData(catalog=catalog, files=files, selections=selections, cosmology=cosmology)
 
 
-def build_model(config, data, *, selection_aware=True, catalog=None, selection_source=None, host_rounds=2):
+def build_model(config, data: FitData, *, selection_aware: bool = True, catalog: Catalog | None = None,
+                selection_source: Catalog | None = None, host_rounds: int = 2) -> CoupledGrowthModel:
     """The posterior of a run; `catalog` replaces the data's rows (mocks of the same design).
 
     `selection_source` (same rows as `catalog`) is the catalogue the selection is compiled on, for
@@ -93,8 +105,16 @@ def build_model(config, data, *, selection_aware=True, catalog=None, selection_s
     return model
 
 
-def run_fit(config, data, *, chain_path=None, on_check=None, selection_aware=True):
+def run_fit(config, data: FitData, *, chain_path=None, on_check=None, selection_aware: bool = True) -> FitResult:
     """MAP, Laplace, MCMC and the summary of one run.
+
+    Parameters
+    ----------
+    config : config.RunConfig (its seed seeds the walkers and the sampler)
+    data : FitData
+    chain_path : path, optional; HDF5 chain, resumed when it exists
+    on_check : callable(step, tau_max, converged), optional progress hook
+    selection_aware : bool, model the declared selection
 
     Returns
     -------
@@ -108,7 +128,7 @@ def run_fit(config, data, *, chain_path=None, on_check=None, selection_aware=Tru
     return FitResult(model=model, laplace=approx, chain=chain, summary=summary)
 
 
-def summarise(config, data, model, approx, chain):
+def summarise(config, data: FitData, model: CoupledGrowthModel, approx, chain) -> dict:
     """The summary.json content of a fit."""
     sensitivity = offset_sensitivity(model, approx)
     warnings = degeneracy_warnings(model, data.catalog, approx, sensitivity)
@@ -154,7 +174,7 @@ def summarise(config, data, model, approx, chain):
     }
 
 
-def data_overview(catalog):
+def data_overview(catalog: Catalog) -> dict:
     """Per-sample counts, redshift and mass ranges, methods."""
     rows = {}
     for name in catalog.sample_names:

@@ -73,7 +73,7 @@ class RedshiftSampler:
         return self._inverse(rng.random(n))
 
 
-def simulate_population(sim_config, seed=None):
+def simulate_population(sim_config: dict | SimConfig, seed=None) -> SimulationResult:
     """Simulate every sample of a configuration.
 
     Parameters
@@ -202,9 +202,19 @@ def _draw_candidates(spec, truth, hosts, redshifts, rng, size):
     return {"z": z, "m_true": m_true, "log_mbh": m_obs, "log_mstar": s_obs}
 
 
-def true_masses(truth, s_true, z, sigma_int, rng, host_offset=0.0):
-    """True log M_BH at the observed epoch (log10 Msun) for hosts s_true at redshifts z, with
-    host-type shifts `host_offset` (dex)."""
+def true_masses(truth: Truth, s_true: np.ndarray, z: np.ndarray, sigma_int, rng: np.random.Generator,
+                host_offset=0.0) -> np.ndarray:
+    """True log M_BH at the observed epoch (log10 Msun): the shared latent mean plus a scatter draw.
+
+    Parameters
+    ----------
+    truth : Truth
+    s_true : ndarray, true host masses at the observed epoch (log10 Msun)
+    z : ndarray, redshifts
+    sigma_int : float or ndarray, intrinsic scatter (dex)
+    rng : numpy Generator
+    host_offset : float or ndarray, host-type shifts (dex)
+    """
     x = lever_arm(z, truth.z_ref)
     scatter = np.asarray(sigma_int) * rng.standard_normal(len(z))
     if truth.f_out > 0:
@@ -215,7 +225,8 @@ def true_masses(truth, s_true, z, sigma_int, rng, host_offset=0.0):
                        host_offset=host_offset, scatter=scatter)
 
 
-def resample_hosts(catalog, truth, selections_by_sample, cosmo, seed=None, *, host_errors="calibrated"):
+def resample_hosts(catalog: Catalog, truth, selections_by_sample: dict, cosmo, seed=None, *,
+                   host_errors: str = "calibrated") -> Catalog:
     """Redraw only the black-hole masses of a catalogue, keeping its design.
 
     Every row keeps its id, z, log_mstar (as observed), errors, sample and method; only log_mbh
