@@ -12,6 +12,8 @@ A run configuration looks like::
     scatter = "shared"             # or "per_sample"
     zero_point_method = "dynamical"
     method_offset_width = 0.3      # dex, Gaussian prior sd of mass-method offsets (or a table per method)
+    zero_point_host_type = "quiescent"  # default: the main host type of the lowest-redshift sample
+    host_offset_width = 1.0        # dex, Gaussian prior sd of host-type offsets (or a table per type)
     host_growth = 0.0              # gamma, fixed
     outliers = false
     host_errors = "calibrated"     # or "first_order" (see model.calibrated_hosts)
@@ -41,10 +43,14 @@ from .validate import in_file
 FORMS = ("ratio", "relation")
 SCATTER_MODES = ("shared", "per_sample")
 HOST_ERROR_MODES = ("calibrated", "first_order")
-_TOP_KEYS = {"seed", "cosmology", "model", "priors", "sampler", "sample", "crosscheck", "out"}
+_TOP_KEYS = {"seed", "cosmology", "model", "priors", "sampler", "sample", "crosscheck", "verdicts"}
 _MODEL_KEYS = {"form", "z_ref", "log_mstar_pivot", "scatter", "zero_point_method",
-               "method_offset_width", "host_growth", "outliers", "host_errors"}
-_SAMPLER_KEYS = {"walkers", "max_steps", "autocorr_factor", "check_every", "progress"}
+               "method_offset_width", "host_growth", "outliers", "host_errors",
+               "zero_point_host_type", "host_offset_width"}
+_SAMPLER_KEYS = {"walkers", "max_steps", "autocorr_factor", "check_every"}
+# Keys once accepted without effect: refused with the reason, not silently ignored.
+_NOT_READ = {"out": "the results folder is given on the command line with --out",
+             "sampler.progress": "progress lines are printed unless --quiet is given"}
 _SAMPLE_KEYS = {"name", "path", "columns", "method", "selection", "drop_invalid"}
 
 
@@ -70,6 +76,10 @@ class ModelOptions:
     scatter: str = "shared"
     zero_point_method: str | None = None
     method_offset_width: object = 0.3
+    zero_point_host_type: str | None = None
+    # Host types differ physically (AGN hosts sit ~0.5-1 dex below quiescent early types in
+    # M_BH/M*: docs/method.md#model), so their offsets get a wider prior than calibrations.
+    host_offset_width: object = 1.0
     host_growth: float = 0.0
     outliers: bool = False
     host_errors: str = "calibrated"
@@ -83,7 +93,6 @@ class SamplerOptions:
     max_steps: int = 20000
     autocorr_factor: float = 50.0
     check_every: int = 100
-    progress: bool = False
 
 
 @dataclass(frozen=True)
@@ -187,19 +196,24 @@ def parse_run_config(raw, *, base_dir=Path("."), source=None):
                      cosmology=cosmology, seed=seed, source=source, raw=raw)
 
 
-def check_against_data(config, methods, samples):
-    """Names the configuration gives must exist in the data: the zero-point method, the methods of
-    an offset-width table, the cross-check's reference sample. ConfigError naming the file."""
+def check_against_data(config, methods, samples, host_types=()):
+    """Names the configuration gives must exist in the data: the zero-point method and host type,
+    the methods and host types of an offset-width table, the cross-check's reference sample.
+    ConfigError naming the file."""
     with in_file(config.source):
-        zero_point = config.model.zero_point_method
-        if zero_point is not None and zero_point not in methods:
-            raise ConfigError(f"model.zero_point_method: {zero_point!r} is not a method of the data; "
-                              f"expected one of {', '.join(methods)}")
-        widths = config.model.method_offset_width
-        for name in widths if isinstance(widths, dict) else ():
-            if name != "default" and name not in methods:
-                raise ConfigError(f"model.method_offset_width.{name}: {name!r} is not a method of the "
-                                  f"data; expected some of default, {', '.join(methods)}")
+        for kind, names in (("method", methods), ("host_type", host_types)):
+            zero_key = "zero_point_method" if kind == "method" else "zero_point_host_type"
+            width_key = "method_offset_width" if kind == "method" else "host_offset_width"
+            what = "a method" if kind == "method" else "a host type"
+            zero_point = getattr(config.model, zero_key)
+            if zero_point is not None and zero_point not in names:
+                raise ConfigError(f"model.{zero_key}: {zero_point!r} is not {what} of the data; "
+                                  f"expected one of {', '.join(names) or '(none given)'}")
+            widths = getattr(config.model, width_key)
+            for name in widths if isinstance(widths, dict) else ():
+                if name != "default" and name not in names:
+                    raise ConfigError(f"model.{width_key}.{name}: {name!r} is not {what} of the "
+                                      f"data; expected some of default, {', '.join(names)}")
         reference = config.raw.get("crosscheck", {}).get("reference")
         if isinstance(reference, str) and reference not in samples:
             raise ConfigError(f"crosscheck.reference: {reference!r} is not a sample of the data; "
@@ -216,13 +230,15 @@ def _parse_model(table):
     validate.number(options.log_mstar_pivot, "model.log_mstar_pivot", low=0, high=13, unit="(log10 Msun)")
     validate.number(options.host_growth, "model.host_growth", low=-10, high=10)
     validate.boolean(options.outliers, "model.outliers")
-    if options.zero_point_method is not None:
-        validate.text(options.zero_point_method, "model.zero_point_method")
-    widths = options.method_offset_width
-    pairs = ([(f"model.method_offset_width.{name}", value) for name, value in widths.items()]
-             if isinstance(widths, dict) else [("model.method_offset_width", widths)])
-    for key, value in pairs:
-        validate.number(value, key, low=0, low_open=True, unit="dex")
+    for key in ("zero_point_method", "zero_point_host_type"):
+        if getattr(options, key) is not None:
+            validate.text(getattr(options, key), f"model.{key}")
+    for key in ("method_offset_width", "host_offset_width"):
+        widths = getattr(options, key)
+        pairs = ([(f"model.{key}.{name}", value) for name, value in widths.items()]
+                 if isinstance(widths, dict) else [(f"model.{key}", widths)])
+        for label, value in pairs:
+            validate.number(value, label, low=0, low_open=True, unit="dex")
     return options
 
 
@@ -233,7 +249,6 @@ def _parse_sampler(table):
     validate.integer(options.max_steps, "sampler.max_steps", low=100)
     validate.number(options.autocorr_factor, "sampler.autocorr_factor", low=1)
     validate.integer(options.check_every, "sampler.check_every", low=1)
-    validate.boolean(options.progress, "sampler.progress")
     return options
 
 
@@ -297,5 +312,8 @@ def _check_unique_names(samples):
 def _check_keys(table, allowed, prefix):
     validate.table(table, prefix.rstrip(".") or "configuration")
     unknown = sorted(set(table) - set(allowed))
+    for key in unknown:
+        if prefix + key in _NOT_READ:
+            raise ConfigError(f"key '{prefix}{key}' is not read: {_NOT_READ[prefix + key]}")
     if unknown:
         raise ConfigError(f"unknown key '{prefix}{unknown[0]}'; expected one of {', '.join(sorted(allowed))}")

@@ -63,7 +63,7 @@ def challenge_claim(config, data, claim, *, replicas=DEFAULT_REPLICAS, mode="fas
                 unsound[name] += not fit["converged"]
             if on_progress is not None:
                 on_progress(label, r + 1, replicas)
-        hypotheses[label] = {"k": k, "truth": truth,
+        hypotheses[label] = {"k": k, "truth": truth.to_dict(),
                              **{name: {**_describe(np.array(values), k, observed[name]["k"]),
                                        "not_converged": unsound[name]}
                                 for name, values in draws.items()}}

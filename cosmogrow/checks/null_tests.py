@@ -368,7 +368,7 @@ def k0_with_selection(ctx):
                                 "false_positives": n_fp,
                                 "false_positive_p": p_fp, "observed_percentile": percentile,
                                 "not_converged": unsound,
-                                "truth": truth})
+                                "truth": truth.to_dict()})
 
 
 TESTS = {"redshift_permutation": redshift_permutation, "reference_split": reference_split,

@@ -13,16 +13,20 @@ from ..data.readers import MAP_TARGETS, read_catalogs
 from .crosscheck import crosscheck_options, crosscheck_warnings, run_crosscheck
 from ..config import check_against_data
 from ..errors import ConfigError
-from .laplace import find_map, laplace, start_walkers
+from .k_estimate import sample_posterior
+from .laplace import find_map, laplace
 from ..model.hostprior import parent_host_priors
 from ..model.likelihood import CoupledGrowthModel, build_design
 from ..outputs import package_versions
-from .mcmc import default_walkers, run_ensemble
-from ..seeding import make_rng
 from ..validate import in_file
 from ..selection.compiled import SelectionSet, build_selection
 from .summary import (convergence_block, degeneracy_warnings, describe_parameters,
                       describe_samples, hypothesis_tests, offset_sensitivity)
+from .guards import identifiability, identifiability_warning, undeclared_methods_warning
+from .information import describe_information
+from .sensitivity import common_width, offset_subject, sensitivity_rows, significance_block
+from .verdicts import headline, verdict_options, verdicts_from_rows
+from ..seeding import child_seed
 
 
 @dataclass(frozen=True, eq=False)
@@ -45,7 +49,7 @@ class FitResult:
     summary: dict
 
 
-def load_data(config):
+def load_data(config) -> FitData:
     """Read every sample's catalogue and its selection; duplicate ids across files are an error.
 
     Configuration errors (selection, cosmology, column names, names that must match the data)
@@ -56,6 +60,7 @@ def load_data(config):
             raise ConfigError("no catalogues given (list them on the command line or as [[sample]] tables)")
         cosmology = background.get_cosmology(config.cosmology)
         crosscheck_options(config.raw.get("crosscheck", {}), config.source)  # fail before the MCMC
+        verdict_options(config.raw.get("verdicts", {}), config.source)
         built = [list(build_selection(list(spec.selection), where=f"sample[{i + 1}]"))
                  for i, spec in enumerate(config.samples)]
         for i, spec in enumerate(config.samples):
@@ -67,7 +72,8 @@ def load_data(config):
                                 "drop_invalid": spec.drop_invalid, "default_method": spec.method})
                    for spec in config.samples]
         catalog, files = read_catalogs(entries)
-        check_against_data(config, catalog.method_names, catalog.sample_names)
+        check_against_data(config, catalog.method_names, catalog.sample_names,
+                           tuple(h for h in catalog.host_type_names if h != "unspecified"))
         selections = {}
         for models, info in zip(built, files):
             for name in info["samples"]:
@@ -77,7 +83,8 @@ def load_data(config):
     return FitData(catalog=catalog, files=files, selections=selections, cosmology=cosmology)
 
 
-def build_model(config, data, *, selection_aware=True, catalog=None, selection_source=None, host_rounds=2):
+def build_model(config, data: FitData, *, selection_aware: bool = True, catalog: Catalog | None = None,
+                selection_source: Catalog | None = None, host_rounds: int = 2) -> CoupledGrowthModel:
     """The posterior of a run; `catalog` replaces the data's rows (mocks of the same design).
 
     `selection_source` (same rows as `catalog`) is the catalogue the selection is compiled on, for
@@ -93,7 +100,6 @@ def build_model(config, data, *, selection_aware=True, catalog=None, selection_s
     if selection_aware and any(data.selections.values()):
         selection = SelectionSet.compile(data.selections, source, data.cosmology)
     model = CoupledGrowthModel(build_design(catalog, config.model), config.model, config.priors, selection)
-    model.host_priors = {}
     if model.selection is None or config.model.host_errors != "calibrated":
         return model
     cut = [name for name, models in data.selections.items() if any(m.on != "host" for m in models)]
@@ -103,37 +109,43 @@ def build_model(config, data, *, selection_aware=True, catalog=None, selection_s
         theta, _, _ = find_map(model, theta)
         priors = parent_host_priors(model, catalog, theta, selected, config.model.log_mstar_pivot, priors)
         model = CoupledGrowthModel(build_design(catalog, config.model, priors), config.model,
-                                   config.priors, selection)
-        model.host_priors = priors
-        model.map_start = theta
+                                   config.priors, selection, host_priors=priors, map_start=theta)
     return model
 
 
-def run_fit(config, data, *, chain_path=None, on_check=None, selection_aware=True, chain_attrs=None):
+def run_fit(config, data: FitData, *, chain_path=None, on_check=None, selection_aware: bool = True,
+            verdicts: dict | None = None, chain_attrs: dict | None = None) -> FitResult:
     """MAP, Laplace, MCMC and the summary of one run (`chain_attrs`: see inference.resume).
+
+    Parameters
+    ----------
+    config : config.RunConfig (its seed seeds the walkers and the sampler)
+    data : FitData
+    chain_path : path, optional; HDF5 chain, resumed when it exists
+    on_check : callable(step, tau_max, converged), optional progress hook
+    selection_aware : bool, model the declared selection
+    verdicts : dict {threshold, k_refs} from `verdicts.verdict_options`, optional; default the
+        configuration's `[verdicts]` table
 
     Returns
     -------
     FitResult
     """
     model = build_model(config, data, selection_aware=selection_aware)
-    seed = np.random.SeedSequence(config.seed)
-    walker_seed, sampler_seed = seed.spawn(2)
     approx = laplace(model)
-    n_walkers = default_walkers(model.ndim, config.sampler.walkers)
-    start = start_walkers(model, approx, n_walkers, make_rng(walker_seed))
-    chain = run_ensemble(model.log_prob, start, max_steps=config.sampler.max_steps,
-                         autocorr_factor=config.sampler.autocorr_factor,
-                         check_every=config.sampler.check_every, chain_path=chain_path,
-                         seed=sampler_seed, on_check=on_check, chain_attrs=chain_attrs)
-    summary = summarise(config, data, model, approx, chain)
+    chain = sample_posterior(model, approx, config.sampler, seed=config.seed, chain_path=chain_path,
+                             on_check=on_check, chain_attrs=chain_attrs)
+    summary = summarise(config, data, model, approx, chain, verdicts)
     return FitResult(model=model, laplace=approx, chain=chain, summary=summary)
 
 
-def summarise(config, data, model, approx, chain):
+def summarise(config, data: FitData, model: CoupledGrowthModel, approx, chain,
+              verdicts: dict | None = None) -> dict:
     """The summary.json content of a fit."""
     sensitivity = offset_sensitivity(model, approx)
     warnings = degeneracy_warnings(model, data.catalog, approx, sensitivity)
+    judged = assess(config, data, model, approx, chain, verdicts)
+    warnings = [line for line in judged.pop("warnings") if line] + warnings
     if not chain.converged:
         warnings.insert(0, f"the chain did not converge: {chain.n_steps} steps is "
                            f"{chain.n_steps / chain.tau_max:.1f} autocorrelation times, "
@@ -153,7 +165,12 @@ def summarise(config, data, model, approx, chain):
     warnings += crosscheck_warnings(crosscheck, k_summary)
     return {
         "k": k_summary,
-        "tests": hypothesis_tests(model, chain, approx),
+        "headline": judged["headline"],
+        "verdicts": judged["verdicts"],
+        "tests": hypothesis_tests(model, chain, judged["significance"]),
+        "sensitivity": judged["sensitivity"],
+        "information": judged["information"],
+        "identifiability": judged["identifiability"],
         "convergence": convergence_block(chain, config.sampler.autocorr_factor),
         "parameters": describe_parameters(model.names, chain.samples),
         "map": {"theta": dict(zip(model.names, approx.theta)), "log_prob": approx.log_prob,
@@ -164,7 +181,7 @@ def summarise(config, data, model, approx, chain):
                                   for name, models in data.selections.items()},
                       "parent_host_priors": {name: {"mean": mean, "std": float(np.sqrt(var))}
                                              for name, (mean, var) in
-                                             getattr(model, "host_priors", {}).items()}},
+                                             model.host_priors.items()}},
         "crosscheck": crosscheck,
         "warnings": warnings,
         "data": data_overview(data.catalog),
@@ -176,7 +193,24 @@ def summarise(config, data, model, approx, chain):
     }
 
 
-def data_overview(catalog):
+def assess(config, data: FitData, model: CoupledGrowthModel, approx, chain,
+           verdicts: dict | None = None) -> dict:
+    """Significances, sensitivity rows, verdicts, information shares and identifiability of a fit
+    (docs/method.md#verdicts)."""
+    options = verdicts or verdict_options(config.raw.get("verdicts", {}), config.source)
+    k_draws = chain.samples[:, model.index_k]
+    rows = sensitivity_rows(model, approx, k_draws, options["k_refs"], seed=child_seed(config.seed, 2))
+    judged = verdicts_from_rows(rows, options["k_refs"], options["threshold"], common_width(model),
+                                offset_subject(model))
+    guard = identifiability(k_draws, model.priors["k"], data.catalog.z)
+    return {"significance": significance_block(rows, model), "sensitivity": rows,
+            "verdicts": judged, "headline": headline(judged),
+            "information": describe_information(model, approx, data.catalog),
+            "identifiability": guard,
+            "warnings": [identifiability_warning(guard), undeclared_methods_warning(data.catalog)]}
+
+
+def data_overview(catalog: Catalog) -> dict:
     """Per-sample counts, redshift and mass ranges, methods."""
     rows = {}
     for name in catalog.sample_names:

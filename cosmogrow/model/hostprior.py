@@ -32,7 +32,8 @@ def _selected_host_log_like(params, rows, parts, model, catalog, selection, cent
     # conditional (given s_obs) and parent latent masses stacked, for one selection call
     mu = np.zeros((2 * n_params, n))
     var = np.ones((2 * n_params, n))
-    base = parts["alpha"] - parts["k_eff"] * x
+    # the latent mean of model.mean.latent_mean, summed in this order since the pinned fits were made
+    base = parts["alpha"] - parts["k_eff"] * x + parts["host_offset"][rows]
     mu[:n_params, rows] = base + beta * (s_true - centred_pivot)
     var[:n_params, rows] = sigma2 + beta**2 * shrink * err2
     mu[n_params:, rows] = base + beta * (centre - centred_pivot)
@@ -48,7 +49,7 @@ def _value_and_gradient(params, *args, step=1e-5):
     return values[0], np.array([values[1] - values[2], values[3] - values[4]]) / (2 * step)
 
 
-def parent_host_priors(model, catalog, theta, samples, pivot, start=None):
+def parent_host_priors(model, catalog, theta: np.ndarray, samples, pivot: float, start: dict | None = None) -> dict:
     """(mean, variance) of the parent true-host distribution of each named sample.
 
     Parameters

@@ -66,12 +66,14 @@ def relation_figure(catalog, summary, options, path):
     style.save(fig, path)
 
 
-def offsets_figure(catalog, summary, samples_k, options, path, method_offsets=None):
-    """Each object's offset from the reference-epoch relation against redshift, with -k log(1+z)."""
+def offsets_figure(catalog, summary, samples_k, options, path, method_offsets=None, host_offsets=None):
+    """Each object's offset from the reference-epoch relation against redshift, with -k log(1+z);
+    the fitted mass-method and host-type offsets ({label: dex}) are taken out first."""
     params = _median_params(summary)
     beta = params.get("beta", 1.0)
-    method_offsets = method_offsets or {}
-    delta = np.array([method_offsets.get(m, 0.0) for m in catalog.method])
+    method_offsets, host_offsets = method_offsets or {}, host_offsets or {}
+    delta = np.array([method_offsets.get(m, 0.0) + host_offsets.get(h, 0.0)
+                      for m, h in zip(catalog.method, catalog.host_type)])
     offset = (catalog.log_mbh - delta - params["alpha"]
               - beta * (catalog.log_mstar - options.log_mstar_pivot))
     fig, ax = plt.subplots(figsize=(6.2, 4.2))

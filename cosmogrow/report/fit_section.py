@@ -9,6 +9,7 @@ import re
 from markupsafe import Markup, escape
 
 from .formatting import Cell, as_float, dig, fmt, fmt_interval, fmt_p, table
+from .verdict_section import assumptions_table, information_table, sigma_text, verdict_items, verdict_line
 
 _GREEK = {"alpha": "α", "beta": "β", "gamma": "γ", "delta": "δ", "sigma": "σ", "tau": "τ"}
 _NAME = re.compile(r"^(?P<base>[A-Za-z]+)(?:_(?P<sub>[A-Za-z0-9]+))?(?:\[(?P<tag>.*)\])?$")
@@ -96,20 +97,22 @@ def fit_card(label, summary, anchor, n_warnings=0):
         ("68 % interval", fmt_interval(dig(k, "interval68"), 2)),
         ("95 % interval", fmt_interval(dig(k, "interval95"), 2)),
         ("P(k ≤ 0 | data)", fmt_p(dig(tests, "p_k_le_0"))),
-        ("against k = 0", _sigma(dig(tests, "sigma_vs_k0"))),
-        ("against k = 3", _sigma(dig(tests, "sigma_vs_k3"))),
-        ("Bayes factor B₀₁", fmt(dig(tests, "bayes_factor_k0"), 3)),
+        ("against k = 0", sigma_text(summary, 0)),
+        ("against k = 3", sigma_text(summary, 3)),
+        ("Bayes factor B₀₁", _bayes_text(tests)),
     ]
     pills = status_pills(summary)
     if n_warnings:
         pills.append(pill(f"{n_warnings} warning{'s' if n_warnings != 1 else ''}", "bad", "#warnings"))
     return {"label": label, "anchor": anchor, "kind": fit_kind_label(summary), "k": k_parts(k),
-            "pills": pills, "facts": facts}
+            "pills": pills, "facts": facts, "verdict": verdict_line(summary)}
 
 
-def _sigma(value):
-    number = as_float(value)
-    return "–" if number is None else f"{fmt(number, 2)} σ (profile likelihood)"
+def _bayes_text(tests):
+    """B01 with the width of the uniform k prior it is proportional to."""
+    width = as_float(dig(tests, "bayes_factor_prior_width"))
+    value = fmt(dig(tests, "bayes_factor_k0"), 3)
+    return value if width is None else f"{value} (uniform k prior of width W = {fmt(width, 0)}; B₀₁ ∝ W)"
 
 
 def fit_warnings(summary):
@@ -185,12 +188,16 @@ def tests_table(summary):
     if not isinstance(tests, dict):
         return None
     method = dig(tests, "bayes_factor_method")
-    rows = [["P(k ≤ 0 | data)", fmt_p(tests.get("p_k_le_0")), "posterior fraction of draws with k ≤ 0"],
-            ["k = 0 against the best fit", _sigma(tests.get("sigma_vs_k0")),
-             "Wilks equivalent of the profile-likelihood ratio"],
-            ["k = 3 against the best fit", _sigma(tests.get("sigma_vs_k3")),
-             "Wilks equivalent of the profile-likelihood ratio"],
-            ["Savage–Dickey B₀₁ (k = 0 : free k)", fmt(tests.get("bayes_factor_k0")),
+    rows = [["P(k ≤ 0 | data)", fmt_p(tests.get("p_k_le_0")), "posterior fraction of draws with k ≤ 0"]]
+    for k_ref in (0, 3):
+        rows.append([f"k = {k_ref} against the best fit", sigma_text(summary, k_ref),
+                     "σ-equivalent √Λ of the profile-likelihood ratio (Wilks)"])
+        if tests.get(f"sigma_vs_k{k_ref}_unconstrained") is not None:
+            rows.append([f"k = {k_ref}, the data alone",
+                         f"{fmt(tests[f'sigma_vs_k{k_ref}_unconstrained'], 2)} σ "
+                         f"({tests.get('significance_method_unconstrained', 'offsets unconstrained')})",
+                         "the same ratio with the offsets unconstrained"])
+    rows += [["Savage–Dickey B₀₁ (k = 0 : free k)", _bayes_text(tests),
              f"> 1 favours k = 0; log₁₀ B₀₁ = {fmt(tests.get('log10_bayes_factor_k0'), 2)}"
              + (f"; density from {method}" if method else "")]]
     return table(["test", "value", "meaning"], [[a, b, Cell(c, "text")] for a, b, c in rows],
@@ -281,7 +288,7 @@ def crosscheck_table(summary):
                          + (f" {AD_NOTE}" if clipped else ""))
 
 
-def sensitivity_table(summary):
+def offset_width_table(summary):
     rows = dig(summary, "degeneracy", "offset_prior_sensitivity")
     if not isinstance(rows, list) or not rows:
         return None
@@ -325,7 +332,9 @@ def model_facts(summary):
 def fit_context(summary, folder=None):
     """Data of the template sections/fit.html.j2: the fit's facts and tables in reading order
     (figures are added by the page; `folder` is unused)."""
-    return {"facts": model_facts(summary), "tables": [data_table(summary), parameter_table(summary), tests_table(summary)],
+    return {"verdicts": verdict_items(summary), "assumptions": assumptions_table(summary),
+            "information": information_table(summary),
+            "facts": model_facts(summary), "tables": [data_table(summary), parameter_table(summary), tests_table(summary)],
             "crosscheck_skipped": dig(summary, "crosscheck", "skipped"),
             "crosscheck": crosscheck_table(summary),
-            "pair": [convergence_table(summary), sensitivity_table(summary)]}
+            "pair": [convergence_table(summary), offset_width_table(summary)]}

@@ -9,6 +9,7 @@ comparison only. The order of the cards follows this rule, never the order of th
 from . import fit_section
 from .formatting import Cell, dig, fmt, fmt_interval, fmt_p, safely, table
 from .sections import BY_KIND
+from .verdict_section import short_sigma
 
 RANK_WORDS = {0: "it models the declared selection of its samples",
               1: "no selection is declared for its samples, so there is none to model"}
@@ -71,7 +72,7 @@ def comparison_table(fits, truth=None):
         rows.append([entry["label"], Cell(role, "text"), Cell(fit_section.fit_kind_label(doc), "text"),
                      fmt(dig(k, "median"), 2), fmt_interval(dig(k, "interval68"), 2),
                      fmt_interval(dig(k, "interval95"), 2), fmt_p(dig(doc, "tests", "p_k_le_0")),
-                     fmt(dig(doc, "tests", "sigma_vs_k0"), 2),
+                     short_sigma(doc, 0),
                      Cell(fmt(conv), "good" if conv else ("bad" if conv is False else None))])
     caption = "k from every fit on this page, side by side (posterior medians and central intervals)"
     caption += f"; the true k of these simulated data is {fmt(truth['k'], 2)}." if truth else "."

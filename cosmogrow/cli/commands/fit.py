@@ -10,9 +10,11 @@ from ...config import read_run_config
 from ...errors import CosmogrowError
 from ...inference.fit import load_data, run_fit
 from ...inference.resume import chain_attrs, find_resumable, fit_fingerprint, stored_seed
+from ...inference.verdicts import verdict_options
 from ...outputs import staged_directory, stale_stages, write_json
 from ._common import add_seed_option, claim_out, resolve_seed
 
+# Results written but flagged: the chain did not converge, or k is not identified.
 EXIT_NOT_CONVERGED = 3
 
 
@@ -32,6 +34,12 @@ def register(subparsers):
                             "configuration and seed)")
     again.add_argument("--force", action="store_true", help="replace the results of an earlier fit in --out")
     parser.add_argument("--quiet", action="store_true", help="no progress lines")
+    parser.add_argument("--claim", type=float, action="append", metavar="K",
+                        help="also judge this k (repeatable); 0 and 3 are always judged "
+                             "(see docs/method.md#verdicts)")
+    parser.add_argument("--threshold", type=float, metavar="SIGMA",
+                        help="significance at which a k counts as excluded (default: the config's "
+                             "verdicts.threshold, else 3)")
     parser.set_defaults(run=run)
 
 
@@ -55,6 +63,8 @@ def run(args):
         args.seed = stored_seed(out)
     config = resolve_seed(config, args.seed)
     data = load_data(config)
+    verdicts = verdict_options(config.raw.get("verdicts", {}), config.source,
+                               claims=args.claim, threshold=args.threshold)
     fingerprint = fit_fingerprint(config, data, selection_aware=not args.plain)
     previous = _chain_to_continue(args, out, config, fingerprint)
     try:
@@ -62,7 +72,7 @@ def run(args):
             if previous is not None:
                 shutil.copy2(previous, stage / "chain.h5")
             result = run_fit(config, data, chain_path=stage / "chain.h5", selection_aware=not args.plain,
-                             on_check=progress_printer(args.quiet),
+                             on_check=progress_printer(args.quiet), verdicts=verdicts,
                              chain_attrs=chain_attrs(fingerprint, config.seed))
             if not np.isfinite(result.summary["k"]["median"]):
                 raise CosmogrowError("the fit gave a non-finite k; nothing written (check the inputs' "
@@ -80,7 +90,8 @@ def run(args):
                 shutil.rmtree(stage, ignore_errors=True)
     print((out / "summary.md").read_text())
     print(f"results written to {out}/")
-    return 0 if result.chain.converged else EXIT_NOT_CONVERGED
+    identified = result.summary["identifiability"]["identified"]
+    return 0 if result.chain.converged and identified else EXIT_NOT_CONVERGED
 
 
 def _chain_to_continue(args, out, config, fingerprint):
@@ -126,7 +137,8 @@ def write_fit_outputs(folder, config, data, result):
              k=samples[:, result.model.index_k], log_prob=result.chain.log_prob)
     corner_figure(samples, names, folder / "corner.png")
     relation_figure(data.catalog, summary, config.model, folder / "relation.png")
-    offsets = {name[len("delta["):-1]: row["median"] for name, row in summary["parameters"].items()
-               if name.startswith("delta[")}
-    offsets_figure(data.catalog, summary, samples[:, 0], config.model, folder / "offsets.png", offsets)
+    layout = result.model.layout
+    medians = layout.from_dict({name: row["median"] for name, row in summary["parameters"].items()})
+    offsets_figure(data.catalog, summary, samples[:, layout.index_k], config.model, folder / "offsets.png",
+                   layout.offsets_by_label(medians, "method"), layout.offsets_by_label(medians, "host_type"))
     crosscheck_figure(summary.get("crosscheck"), summary["k"], folder / "crosscheck.png")
