@@ -38,7 +38,8 @@ from .errors import ConfigError
 FORMS = ("ratio", "relation")
 SCATTER_MODES = ("shared", "per_sample")
 HOST_ERROR_MODES = ("calibrated", "first_order")
-_TOP_KEYS = {"seed", "cosmology", "model", "priors", "sampler", "sample", "crosscheck", "out"}
+_TOP_KEYS = {"seed", "cosmology", "model", "priors", "sampler", "sample", "crosscheck", "out",
+             "verdicts"}
 _MODEL_KEYS = {"form", "z_ref", "log_mstar_pivot", "scatter", "zero_point_method",
                "method_offset_width", "host_growth", "outliers", "host_errors"}
 _SAMPLER_KEYS = {"walkers", "max_steps", "autocorr_factor", "check_every", "progress"}

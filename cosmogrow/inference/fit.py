@@ -21,6 +21,11 @@ from ..seeding import make_rng
 from ..selection.compiled import SelectionSet, build_selection
 from .summary import (convergence_block, degeneracy_warnings, describe_parameters,
                       describe_samples, hypothesis_tests, offset_sensitivity)
+from .guards import identifiability, identifiability_warning, undeclared_methods_warning
+from .information import describe_information
+from .sensitivity import offset_constraints, sensitivity_rows, significance_block
+from .verdicts import headline, verdict_options, verdicts_from_rows
+from ..seeding import child_seed
 
 
 @dataclass(frozen=True, eq=False)
@@ -50,6 +55,7 @@ def load_data(config):
                           "or as [[sample]] tables)")
     cosmology = background.get_cosmology(config.cosmology)
     crosscheck_options(config.raw.get("crosscheck", {}), config.source)  # fail before the MCMC
+    verdict_options(config.raw.get("verdicts", {}), config.source)
     entries = [(spec.path, {"sample": spec.name, "column_map": spec.columns or None,
                             "drop_invalid": spec.drop_invalid, "default_method": spec.method})
                for spec in config.samples]
@@ -97,8 +103,11 @@ def build_model(config, data, *, selection_aware=True, catalog=None, selection_s
     return model
 
 
-def run_fit(config, data, *, chain_path=None, on_check=None, selection_aware=True):
+def run_fit(config, data, *, chain_path=None, on_check=None, selection_aware=True, verdicts=None):
     """MAP, Laplace, MCMC and the summary of one run.
+
+    `verdicts` ({threshold, k_refs} from `verdicts.verdict_options`) defaults to the
+    configuration's `[verdicts]` table.
 
     Returns
     -------
@@ -114,14 +123,16 @@ def run_fit(config, data, *, chain_path=None, on_check=None, selection_aware=Tru
                          autocorr_factor=config.sampler.autocorr_factor,
                          check_every=config.sampler.check_every, chain_path=chain_path,
                          seed=sampler_seed, on_check=on_check)
-    summary = summarise(config, data, model, approx, chain)
+    summary = summarise(config, data, model, approx, chain, verdicts)
     return FitResult(model=model, laplace=approx, chain=chain, summary=summary)
 
 
-def summarise(config, data, model, approx, chain):
+def summarise(config, data, model, approx, chain, verdicts=None):
     """The summary.json content of a fit."""
     sensitivity = offset_sensitivity(model, approx)
     warnings = degeneracy_warnings(model, data.catalog, approx, sensitivity)
+    judged = assess(config, data, model, approx, chain, verdicts)
+    warnings = [line for line in judged.pop("warnings") if line] + warnings
     if not chain.converged:
         warnings.insert(0, f"the chain did not converge: {chain.n_steps} steps is "
                            f"{chain.n_steps / chain.tau_max:.1f} autocorrelation times, "
@@ -141,7 +152,12 @@ def summarise(config, data, model, approx, chain):
     warnings += crosscheck_warnings(crosscheck, k_summary)
     return {
         "k": k_summary,
-        "tests": hypothesis_tests(model, chain, approx),
+        "headline": judged["headline"],
+        "verdicts": judged["verdicts"],
+        "tests": hypothesis_tests(model, chain, judged["significance"]),
+        "sensitivity": judged["sensitivity"],
+        "information": judged["information"],
+        "identifiability": judged["identifiability"],
         "convergence": convergence_block(chain, config.sampler.autocorr_factor),
         "parameters": describe_parameters(model.names, chain.samples),
         "map": {"theta": dict(zip(model.names, approx.theta)), "log_prob": approx.log_prob,
@@ -162,6 +178,24 @@ def summarise(config, data, model, approx, chain):
         "seed": config.seed,
         "versions": package_versions(),
     }
+
+
+def assess(config, data, model, approx, chain, verdicts=None):
+    """Significances, sensitivity rows, verdicts, information shares and identifiability of a fit
+    (docs/method.md#verdicts)."""
+    options = verdicts or verdict_options(config.raw.get("verdicts", {}), config.source)
+    k_draws = chain.samples[:, model.index_k]
+    rows = sensitivity_rows(model, approx, k_draws, options["k_refs"], seed=child_seed(config.seed, 2))
+    widths = offset_constraints(model)[1]
+    base_width = float(widths[0]) if widths.size and np.all(widths == widths[0]) else None
+    judged = verdicts_from_rows(rows, options["k_refs"], options["threshold"], base_width,
+                                "the mass-method offsets")
+    guard = identifiability(k_draws, model.priors["k"], data.catalog.z)
+    return {"significance": significance_block(rows, model), "sensitivity": rows,
+            "verdicts": judged, "headline": headline(judged),
+            "information": describe_information(model, approx, data.catalog),
+            "identifiability": {**guard, "threshold": options["threshold"]},
+            "warnings": [identifiability_warning(guard), undeclared_methods_warning(data.catalog)]}
 
 
 def data_overview(catalog):

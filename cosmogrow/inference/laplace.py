@@ -1,4 +1,4 @@
-"""Point estimates: the maximum a posteriori, its Laplace (Hessian) approximation, profiles in k.
+"""Point estimates: the maximum a posteriori and its Laplace (Hessian) approximation.
 
 All derivatives are finite differences evaluated in one vectorised call of the model's log_prob.
 """
@@ -42,8 +42,13 @@ def gradient(model, theta, scale=None):
     return (values[:ndim] - values[ndim:]) / (2 * h)
 
 
-def hessian(model, theta, scale):
-    """Finite-difference Hessian of log_prob, all 2 d^2 + 1 points evaluated in one call."""
+def hessian_points(model, theta, scale):
+    """The 2 d^2 + 1 points of the finite-difference Hessian and what `assemble_hessian` needs.
+
+    Returns
+    -------
+    points : ndarray (2 d^2 + 1, d); steps : ndarray (d,); pairs : list of (i, j), i < j
+    """
     ndim = len(theta)
     h = _steps(model, theta, scale)
     eye = np.eye(ndim) * h
@@ -53,13 +58,24 @@ def hessian(model, theta, scale):
     for i, j in pairs:
         pts += [theta + eye[i] + eye[j], theta + eye[i] - eye[j],
                 theta - eye[i] + eye[j], theta - eye[i] - eye[j]]
-    values = model.log_prob(np.array(pts))
+    return np.array(pts), h, pairs
+
+
+def assemble_hessian(values, h, pairs):
+    """Hessian from a function's values at `hessian_points` (central differences)."""
+    ndim = len(h)
     f0, plus, minus = values[0], values[1:ndim + 1], values[ndim + 1:2 * ndim + 1]
     hess = np.diag((plus - 2 * f0 + minus) / h**2)
     cross = values[2 * ndim + 1:].reshape(-1, 4)
     for (i, j), (pp, pm, mp, mm) in zip(pairs, cross):
         hess[i, j] = hess[j, i] = (pp - pm - mp + mm) / (4 * h[i] * h[j])
     return hess
+
+
+def hessian(model, theta, scale):
+    """Finite-difference Hessian of log_prob, all 2 d^2 + 1 points evaluated in one call."""
+    points, h, pairs = hessian_points(model, theta, scale)
+    return assemble_hessian(model.log_prob(points), h, pairs)
 
 
 def find_map(model, start=None, fixed=None):
@@ -134,13 +150,6 @@ def _safe_inverse(matrix):
         diag[diag <= 0] = 1e-6
         np.fill_diagonal(inverse, diag)
     return inverse
-
-
-def profile_k(model, k_values, start):
-    """Maximum log_prob with k held at each value; returns an array like k_values."""
-    low, high = model.lower[model.index_k], model.upper[model.index_k]
-    return np.array([find_map(model, start, fixed={model.index_k: float(k)})[1] if low < k < high
-                     else -np.inf for k in np.atleast_1d(k_values)])
 
 
 def start_walkers(model, laplace_result, n_walkers, rng):

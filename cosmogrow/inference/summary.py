@@ -3,8 +3,6 @@
 import numpy as np
 from scipy import stats
 
-from .laplace import profile_k
-
 OFFSET_WIDTHS = (0.05, 0.1, 0.2, 0.3, 0.5, 1.0)
 # |corr(k, delta)| above this in the Laplace covariance is reported as a degeneracy.
 DEGENERACY_CORRELATION = 0.9
@@ -25,6 +23,24 @@ def describe_parameters(names, samples):
     return {name: describe_samples(samples[:, i]) for i, name in enumerate(names)}
 
 
+def weighted_quantiles(values, weights, quantiles):
+    """Quantiles of weighted draws (weights need not be normalised); quantiles in [0, 1]."""
+    order = np.argsort(values)
+    values, weights = np.asarray(values, dtype=float)[order], np.asarray(weights, dtype=float)[order]
+    cumulative = np.cumsum(weights) - 0.5 * weights
+    return np.interp(np.asarray(quantiles) * weights.sum(), cumulative, values)
+
+
+def describe_weighted(values, weights=None):
+    """Median and central 68 % interval of (optionally weighted) 1-d draws."""
+    values = np.asarray(values, dtype=float)
+    if weights is None:
+        low, median, high = np.percentile(values, [16, 50, 84])
+    else:
+        low, median, high = weighted_quantiles(values, weights, [0.16, 0.5, 0.84])
+    return {"median": float(median), "interval68": [float(low), float(high)]}
+
+
 def wilks_sigma(log_max, log_fixed):
     """Equivalent Gaussian significance of a 1-dof profile-likelihood ratio (Wilks 1938)."""
     delta = 2.0 * (log_max - log_fixed)
@@ -33,20 +49,26 @@ def wilks_sigma(log_max, log_fixed):
     return float(np.sqrt(max(delta, 0.0)))
 
 
-def savage_dickey(k_samples, prior_range, k0=0.0):
+def savage_dickey(k_samples, prior_range, k0=0.0, weights=None):
     """Bayes factor B_01 = p(k0 | data) / p(k0) for a uniform prior on k (Savage-Dickey ratio).
 
     The posterior density at k0 is a Gaussian KDE where k0 lies within 3 posterior standard
     deviations; further out a KDE has no draws to stand on, so the Gaussian approximation of the
-    draws is used and the method says so. B_01 > 1 favours k = k0.
+    draws is used and the method says so. B_01 > 1 favours k = k0. `weights` (importance weights
+    of the draws) enter the KDE and the moments. The value is proportional to the width
+    W = high - low of the uniform prior, which is therefore reported beside it.
     """
     low, high = prior_range
     if not (np.isfinite(low) and np.isfinite(high) and low < k0 < high):
         return {"value": None, "log10": None, "method": "prior improper or excludes k0"}
     prior_density = 1.0 / (high - low)
-    mean, std = float(np.mean(k_samples)), float(np.std(k_samples, ddof=1))
+    weights = np.ones(len(k_samples)) if weights is None else np.asarray(weights, dtype=float)
+    weights = weights / weights.sum()
+    mean = float(np.sum(weights * k_samples))
+    # unbiased weighted variance (reduces to ddof = 1 for equal weights)
+    std = float(np.sqrt(np.sum(weights * (k_samples - mean) ** 2) / (1.0 - np.sum(weights**2))))
     if abs(k0 - mean) <= 3 * std:
-        density = float(stats.gaussian_kde(k_samples)(k0)[0])
+        density = float(stats.gaussian_kde(k_samples, weights=weights)(k0)[0])
         method = "kde"
         log_density = np.log(density) if density > 0 else -np.inf
     else:
@@ -56,17 +78,16 @@ def savage_dickey(k_samples, prior_range, k0=0.0):
     return {"value": float(10**log10_bf) if log10_bf > -300 else 0.0, "log10": float(log10_bf), "method": method}
 
 
-def hypothesis_tests(model, chain, laplace_result):
-    """P(k <= 0), profile-likelihood significances against k = 0 and 3, Savage-Dickey B_01."""
+def hypothesis_tests(model, chain, significances):
+    """P(k <= 0), the profile-likelihood significances (`sensitivity.significance_block`) and the
+    Savage-Dickey B_01 with the width W of the uniform k prior it is proportional to."""
     k = chain.samples[:, model.index_k]
-    profile = profile_k(model, [0.0, 3.0], laplace_result.theta)
-    log_max = laplace_result.log_prob
-    bayes = savage_dickey(k, model.priors["k"])
-    return {"p_k_le_0": float(np.mean(k <= 0.0)),
-            "sigma_vs_k0": wilks_sigma(log_max, profile[0]),
-            "sigma_vs_k3": wilks_sigma(log_max, profile[1]),
+    low, high = model.priors["k"]
+    bayes = savage_dickey(k, (low, high))
+    return {"p_k_le_0": float(np.mean(k <= 0.0)), **significances,
             "bayes_factor_k0": bayes["value"], "log10_bayes_factor_k0": bayes["log10"],
-            "bayes_factor_method": bayes["method"]}
+            "bayes_factor_method": bayes["method"], "bayes_factor_k_prior": [float(low), float(high)],
+            "bayes_factor_prior_width": float(high - low)}
 
 
 def offset_sensitivity(model, laplace_result, widths=OFFSET_WIDTHS):

@@ -18,6 +18,8 @@ import math
 import numpy as np
 from scipy import stats
 
+from ..errors import ConfigError
+
 EXCLUDED = "excluded"
 CONSISTENT = "consistent"
 DEPENDS = "depends on assumptions"
@@ -226,3 +228,37 @@ def headline(verdicts):
         else:
             parts.append(f"{head} ({_sigma_text(row['sigma'])})")
     return "; ".join(parts) + "." if parts else ""
+
+
+def verdict_options(table=None, source="<config>", *, claims=None, threshold=None):
+    """The verdict settings of a run: the `[verdicts]` table of a configuration, command-line
+    values winning.
+
+    Parameters
+    ----------
+    table : dict, optional, keys ``threshold`` (σ, > 0) and ``claims`` (list of k values)
+    source : str, the configuration file (for messages)
+    claims : list of float, optional, from ``fit --claim`` (added to the table's)
+    threshold : float, optional, from ``fit --threshold``
+
+    Returns
+    -------
+    dict {threshold: float, k_refs: [0, 3, claims...] without repeats}
+    """
+    table = dict(table or {})
+    unknown = sorted(set(table) - {"threshold", "claims"})
+    if unknown:
+        raise ConfigError(f"{source}: unknown key 'verdicts.{unknown[0]}'; expected one of claims, threshold")
+    value = table.get("threshold", DEFAULT_THRESHOLD) if threshold is None else threshold
+    if isinstance(value, bool) or not isinstance(value, (int, float)) or not 0 < value < 40:
+        raise ConfigError(f"{source}: verdicts.threshold: expected a number of σ in (0, 40), got {value!r}")
+    listed = table.get("claims", [])
+    if not isinstance(listed, list):
+        raise ConfigError(f"{source}: verdicts.claims: expected a list of k values, got {listed!r}")
+    refs = []
+    for k_ref in [0.0, 3.0] + list(listed) + list(claims or []):
+        if isinstance(k_ref, bool) or not isinstance(k_ref, (int, float)) or not math.isfinite(k_ref):
+            raise ConfigError(f"{source}: verdicts.claims: expected finite numbers, got {k_ref!r}")
+        if float(k_ref) not in refs:
+            refs.append(float(k_ref))
+    return {"threshold": float(value), "k_refs": refs}
