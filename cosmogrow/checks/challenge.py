@@ -26,7 +26,7 @@ from ..inference.verdicts import DEFAULT_THRESHOLD, p_from_sigma, verdicts_from_
 from ..seeding import child_seed
 from .claim_words import hypothesis_verdict, summary_lines
 from .context import Fitter, predictive_p, two_sided_mc_p
-from .significance import data_significance_rows, nuisances_at, offset_words
+from .significance import base_width, data_significance_rows, nuisances_at, offset_words
 
 DEFAULT_REPLICAS = 200
 ESTIMATORS = ("selection_aware", "plain")
@@ -66,7 +66,7 @@ def challenge_claim(config, data, claim, *, replicas=DEFAULT_REPLICAS, mode="fas
     rows = data_significance_rows(model, [k for _, k in labels], start)
     fit_verdicts = dict(zip((label for label, _ in labels),
                             verdicts_from_rows(rows, [k for _, k in labels], threshold,
-                                               what=offset_words(model))))
+                                               base_width(model), offset_words(model))))
     hypotheses = {}
     for h, (label, k) in enumerate(labels, start=1):
         truth, offsets = nuisances_at(model, start, k)
@@ -104,8 +104,8 @@ def _check(claim, replicas, mode, threshold):
         raise ConfigError(f"--replicas: expected an integer >= 3, got {replicas!r}")
     if mode not in MODES:
         raise ConfigError(f"--mode: expected one of {', '.join(MODES)}, got {mode!r}")
-    if not (np.isfinite(threshold) and 0 < threshold <= 10):
-        raise ConfigError(f"--threshold: expected a significance in σ, 0 < threshold <= 10, got {threshold!r}")
+    if not (np.isfinite(threshold) and 0 < threshold < 40):
+        raise ConfigError(f"--threshold: expected a number of σ in (0, 40), got {threshold!r}")
 
 
 def describe_draws(draws, k_true, k_observed):

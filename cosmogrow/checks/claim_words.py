@@ -26,17 +26,30 @@ NEAR_THRESHOLD = 0.5
 
 
 def caveats(row):
-    """Phrases naming what a hypothesis needs: offsets far outside their priors, a biased estimator."""
+    """What a hypothesis needs, in sentences: offsets far outside their priors, a biased estimator."""
     out = []
-    for name, pull in row["nuisance_pulls"].items():
-        if abs(pull) > PULL_LIMIT:
-            out.append(f"{name} = {row['nuisance_values'][name]:+.2f} dex, {abs(pull):.1f}σ outside "
-                       f"its prior N(0, {row['nuisance_prior_sd'][name]:.2g} dex)")
+    far = [f"{name} = {row['nuisance_values'][name]:+.2f} dex, {abs(pull):.1f}σ outside its prior "
+           f"N(0, {row['nuisance_prior_sd'][name]:.2g} dex)"
+           for name, pull in row["nuisance_pulls"].items() if abs(pull) > PULL_LIMIT]
+    if far:
+        out.append(f"k = {row['k']:g} needs {' and '.join(far)}.")
     aware = row["selection_aware"]
     if np.isfinite(aware["bias_sigma"]) and abs(aware["bias_sigma"]) > BIAS_LIMIT:
-        out.append(f"an estimator biased by {aware['bias_sigma']:+.1f}σ in its mocks (median k = "
-                   f"{aware['median']:.2f} for a truth of {row['k']:g})")
+        out.append(f"The selection-aware estimator is biased by {aware['bias_sigma']:+.1f}σ in the mocks "
+                   f"at k = {row['k']:g} (median k = {aware['median']:.2f} for a truth of {row['k']:g}).")
     return out
+
+
+def _short(row):
+    """The caveats in a clause: "only with an offset 3.2σ outside its prior and an estimator ..."."""
+    parts = []
+    worst = max((abs(p) for p in row["nuisance_pulls"].values()), default=0.0)
+    if worst > PULL_LIMIT:
+        parts.append(f"only with an offset {worst:.1f}σ outside its prior")
+    bias = row["selection_aware"]["bias_sigma"]
+    if np.isfinite(bias) and abs(bias) > BIAS_LIMIT:
+        parts.append(f"with an estimator biased by {bias:+.1f}σ in its mocks")
+    return " and ".join(parts)
 
 
 def disagreement(row, fit_verdict, sigma, threshold, observed):
@@ -87,10 +100,10 @@ def hypothesis_verdict(label, row, observed, fit_verdict, alpha, threshold, sele
         text = (f"Whether {subject[0].lower() + subject[1:]} is consistent with these data depends on "
                 f"assumptions: {fit_verdict['reason']} With the configured constraint, {evidence}.")
     else:
-        but = f", but only with {' and with '.join(needs)}" if needs else ""
+        but = f", but {_short(row)}" if needs and status == CONSISTENT else ""
         text = f"{subject} is {status} with these data {modelled}{but}: {evidence}."
-    if needs and status != CONSISTENT:
-        text += f" The mocks at k = {row['k']:g} were drawn with {'; and with '.join(needs)}."
+    if needs:
+        text += " " + " ".join(needs)
     if fit_verdict.get("data_alone"):
         text += " " + fit_verdict["data_alone"]
     return {"status": status, "consistent": {CONSISTENT: True, NOT_CONSISTENT: False}.get(status),

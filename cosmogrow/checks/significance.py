@@ -12,6 +12,7 @@ import numpy as np
 from ..errors import ConfigError
 from ..campaigns.mocks import design_truth
 from ..inference.laplace import find_map
+from ..inference.sensitivity import ConstrainedLikelihood, offset_constraints, profile_significances
 from ..inference.verdicts import WIDTH_SCALES
 
 
@@ -29,9 +30,7 @@ def data_significance_rows(model, k_refs, start):
     list of dict: one "offset_width_scale" row per scale of `verdicts.WIDTH_SCALES` and one
     "offsets_unconstrained" row, or a single "as_configured" row when the model has no offset.
     """
-    from ..inference.sensitivity import ConstrainedLikelihood, profile_significances
-
-    if _constraints(model)[0].size == 0:
+    if offset_constraints(model)[0].size == 0:
         _, sigmas = profile_significances(ConstrainedLikelihood(model, 1.0), k_refs, start)
         return [{"setting": "as_configured", "value": 1.0, "sigma_by_k": sigmas}]
     rows = []
@@ -49,7 +48,7 @@ def offset_nuisances(model, theta):
     -------
     dict: values {name: dex}, prior_sd {name: dex}, pulls {name: value / prior sd}
     """
-    index, widths = _constraints(model)
+    index, widths = offset_constraints(model)
     theta = np.asarray(theta, dtype=float)
     names = [model.names[i] for i in index]
     return {"values": {n: float(theta[i]) for n, i in zip(names, index)},
@@ -57,9 +56,15 @@ def offset_nuisances(model, theta):
             "pulls": {n: float(theta[i] / w) for n, i, w in zip(names, index, widths)}}
 
 
+def base_width(model):
+    """The offsets' common prior width (dex), or None when they differ (as the fit words it)."""
+    widths = offset_constraints(model)[1]
+    return float(widths[0]) if widths.size and np.all(widths == widths[0]) else None
+
+
 def offset_words(model):
     """How the offsets are named in verdict sentences ("the mass-method offsets")."""
-    names = [model.names[i] for i in _constraints(model)[0]]
+    names = [model.names[i] for i in offset_constraints(model)[0]]
     kinds = []
     if any(name.startswith("delta[") for name in names):
         kinds.append("mass-method")
@@ -84,8 +89,3 @@ def nuisances_at(model, start, k):
     theta, _, _ = find_map(model, start, fixed={model.index_k: float(k)})
     return design_truth(model, theta, k), offset_nuisances(model, theta)
 
-
-def _constraints(model):
-    from ..inference.sensitivity import offset_constraints
-
-    return offset_constraints(model)
