@@ -12,6 +12,8 @@ A run configuration looks like::
     scatter = "shared"             # or "per_sample"
     zero_point_method = "dynamical"
     method_offset_width = 0.3      # dex, Gaussian prior sd of mass-method offsets (or a table per method)
+    zero_point_host_type = "quiescent"  # default: the main host type of the lowest-redshift sample
+    host_offset_width = 1.0        # dex, Gaussian prior sd of host-type offsets (or a table per type)
     host_growth = 0.0              # gamma, fixed
     outliers = false
     host_errors = "calibrated"     # or "first_order" (see model.calibrated_hosts)
@@ -41,7 +43,8 @@ HOST_ERROR_MODES = ("calibrated", "first_order")
 _TOP_KEYS = {"seed", "cosmology", "model", "priors", "sampler", "sample", "crosscheck", "out",
              "verdicts"}
 _MODEL_KEYS = {"form", "z_ref", "log_mstar_pivot", "scatter", "zero_point_method",
-               "method_offset_width", "host_growth", "outliers", "host_errors"}
+               "method_offset_width", "host_growth", "outliers", "host_errors",
+               "zero_point_host_type", "host_offset_width"}
 _SAMPLER_KEYS = {"walkers", "max_steps", "autocorr_factor", "check_every", "progress"}
 _SAMPLE_KEYS = {"name", "path", "columns", "method", "selection", "drop_invalid"}
 
@@ -68,6 +71,10 @@ class ModelOptions:
     scatter: str = "shared"
     zero_point_method: str | None = None
     method_offset_width: object = 0.3
+    zero_point_host_type: str | None = None
+    # Host types differ physically (AGN hosts sit ~0.5-1 dex below quiescent early types in
+    # M_BH/M*: docs/method.md#model), so their offsets get a wider prior than calibrations.
+    host_offset_width: object = 1.0
     host_growth: float = 0.0
     outliers: bool = False
     host_errors: str = "calibrated"
@@ -170,12 +177,13 @@ def _parse_model(table, source):
         _check_number(f"model.{key}", getattr(options, key), source)
     if options.z_ref < 0:
         raise ConfigError(f"{source}: model.z_ref: expected >= 0, got {options.z_ref!r}")
-    widths = options.method_offset_width
-    values = widths.values() if isinstance(widths, dict) else [widths]
-    for value in values:
-        _check_number("model.method_offset_width", value, source)
-        if value <= 0:
-            raise ConfigError(f"{source}: model.method_offset_width: expected > 0 dex, got {value!r}")
+    for key in ("method_offset_width", "host_offset_width"):
+        widths = getattr(options, key)
+        values = widths.values() if isinstance(widths, dict) else [widths]
+        for value in values:
+            _check_number(f"model.{key}", value, source)
+            if value <= 0:
+                raise ConfigError(f"{source}: model.{key}: expected > 0 dex, got {value!r}")
     return options
 
 

@@ -30,3 +30,11 @@ def child_seed(seed, *indices):
     if isinstance(seed, np.random.SeedSequence):
         return np.random.SeedSequence(seed.entropy, spawn_key=tuple(seed.spawn_key) + tuple(int(i) for i in indices))
     return np.random.SeedSequence(seed, spawn_key=tuple(int(i) for i in indices))
+
+
+def child_seeds(seed, n):
+    """Children 0 .. n-1 of `seed` (`child_seed(seed, j)`), e.g. one for the walkers and one for
+    the sampler of a fit. They do not depend on, or change, the parent's spawn counter; with
+    seed None the n children share one fresh root."""
+    parent = seed if isinstance(seed, np.random.SeedSequence) else np.random.SeedSequence(seed)
+    return [child_seed(parent, j) for j in range(n)]

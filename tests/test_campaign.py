@@ -339,7 +339,7 @@ def test_design_truth_names_every_parameter():
     assert model.names == ("k", "alpha", "beta", "sigma_int[S0]", "sigma_int[S1]", "delta[virial]")
     truth = design_truth(model, [9.0, 8.4, 0.9, 0.25, 0.35, 0.2], k=2.0)
     assert truth == {"k": 2.0, "alpha": 8.4, "beta": 0.9, "sigma_int": {"S0": 0.25, "S1": 0.35},
-                     "delta": {"dynamical": 0.0, "virial": 0.2}, "gamma": 0.5, "s_pivot": 10.5,
+                     "delta": {"dynamical": 0.0, "virial": 0.2}, "delta_host": {}, "gamma": 0.5, "s_pivot": 10.5,
                      "z_ref": 0.1}
     changed = apply_overrides(truth, {"sigma_int": 0.3, "delta": {"virial": -0.1}})
     assert changed["sigma_int"] == {"S0": 0.3, "S1": 0.3} and changed["delta"]["virial"] == -0.1

@@ -16,11 +16,18 @@ from cosmogrow.errors import ConfigError, InputError
 from cosmogrow.report.fit_section import parameter_label
 from cosmogrow.report.folders import collect_folders
 from cosmogrow.report.html import build_report
-from cosmogrow.report.htmlkit import esc, fmt, fmt_sig
+from markupsafe import escape
+
+from cosmogrow.report.formatting import fmt, fmt_sig
 from cosmogrow.report.latex import escape_latex, parameter_symbol, posterior_table
 
 from report_fixtures import (EVIL_METHOD, EVIL_REMNANT, EVIL_SAMPLE, EVIL_TEST_NOTE,
                              results_folders)
+
+def esc(text):
+    """Text as the page's template engine escapes it."""
+    return str(escape(text))
+
 
 EVIL_TITLE = "<script>alert('title')</script>"
 VOID = {"meta", "img", "br", "hr", "link", "input", "source", "wbr", "col", "area", "base"}
@@ -34,7 +41,8 @@ def folders(tmp_path_factory):
 @pytest.fixture(scope="session")
 def page(folders, tmp_path_factory):
     out = tmp_path_factory.mktemp("page") / "report.html"
-    assert build_report(list(folders.values()), out, title=EVIL_TITLE) == out
+    written = build_report(list(folders.values()), out, title=EVIL_TITLE)
+    assert written.path == out and written.problems == ()
     return out.read_text(encoding="utf-8")
 
 
@@ -47,7 +55,7 @@ def test_hostile_text_is_shown_escaped_never_as_markup(page):
     # The planted strings reach the page (sample name, method name inside a warning, a remnant's
     # object id, a null test's note, the title) but only in escaped form.
     for text in (EVIL_SAMPLE, EVIL_METHOD, EVIL_REMNANT, EVIL_TEST_NOTE, EVIL_TITLE):
-        assert html.escape(text, quote=True) in page, text
+        assert esc(text) in page, text
     assert "<script" not in page.lower()
     assert "<img src=x" not in page and 'onerror="' not in page
 
@@ -55,7 +63,7 @@ def test_hostile_text_is_shown_escaped_never_as_markup(page):
 def test_warning_with_markup_is_escaped_in_the_warnings_panel(page):
     panel = page[page.index('id="warnings"'):page.index('id="contents"')]
     assert "degenerate" in panel
-    assert html.escape(EVIL_METHOD, quote=True) in panel
+    assert esc(EVIL_METHOD) in panel
 
 
 def test_page_is_self_contained(page):
@@ -125,7 +133,7 @@ def test_tables_of_every_kind_are_present(page, folders):
     for caption in ("The data:", "Posterior of every parameter", "Hypothesis tests on k",
                     "Convergence of the ensemble sampler", "Assumption-light cross-check",
                     "Recovery of injected k", "Simulation-based calibration", "Null tests:",
-                    "The data&#x27;s estimate among mocks", "Comoving density today", "Birth mass of each black hole",
+                    esc("The data's estimate among mocks"), "Comoving density today", "Birth mass of each black hole",
                     "Seeds and versions"):
         assert caption in page, caption
     assert page.count("<table") >= 12
@@ -133,8 +141,8 @@ def test_tables_of_every_kind_are_present(page, folders):
 
 def test_warnings_cover_failed_tests_miscalibration_selection_and_degeneracy(page):
     panel = page[page.index('id="warnings"'):page.index('id="contents"')]
-    assert "&#x27; FAILED: " + html.escape(EVIL_TEST_NOTE, quote=True) in panel
-    assert "estimator &#x27;plain&#x27; is not calibrated" in panel
+    assert esc("' FAILED: ") + esc(EVIL_TEST_NOTE) in panel
+    assert esc("estimator 'plain' is not calibrated") in panel
     assert "challenge: no selection is declared" in panel
     assert "no selection is declared for any sample" in panel
 
@@ -142,9 +150,9 @@ def test_warnings_cover_failed_tests_miscalibration_selection_and_degeneracy(pag
 def test_challenge_verdicts_are_shown(page, folders):
     challenge = json.loads((folders["challenge"] / "challenge.json").read_text())
     headline = page[page.index('id="headline"'):page.index('id="warnings"')]
-    claim = html.escape(challenge["verdict"]["claim"]["text"], quote=True)
+    claim = esc(challenge["verdict"]["claim"]["text"])
     assert claim in headline
-    assert page.count(claim) >= 2 and html.escape(challenge["verdict"]["null"]["text"], quote=True) in page
+    assert page.count(claim) >= 2 and esc(challenge["verdict"]["null"]["text"]) in page
 
 
 def test_method_references_and_provenance(page, folders):
@@ -164,8 +172,7 @@ def test_non_convergence_and_unmodelled_selection_are_flagged(folders, tmp_path)
     folder = tmp_path / "stalled"
     folder.mkdir()
     (folder / "summary.json").write_text(json.dumps(summary))
-    out = build_report([folder], tmp_path / "r.html")
-    text = out.read_text()
+    text = build_report([folder], tmp_path / "r.html").path.read_text()
     panel = text[text.index('id="warnings"'):text.index('id="contents"')]
     assert "the chain did not converge" in panel
     assert "selection is not modelled" in panel
@@ -181,7 +188,7 @@ def test_unexpected_layouts_are_shown_without_crashing(tmp_path):
     folder.mkdir()
     for name, value in odd.items():
         (folder / name).write_text(json.dumps(value))
-    text = build_report([folder], tmp_path / "odd.html").read_text()
+    text = build_report([folder], tmp_path / "odd.html").path.read_text()
     for title in ("Posterior of k", "Null tests", "Does a claimed k survive", "Dark-energy budget",
                   "Stellar-remnant test"):
         assert title in text

@@ -30,7 +30,7 @@ def rendered(tmp_path_factory):
 
     folders = results_folders(tmp_path_factory)
     out_dir = tmp_path_factory.mktemp("browser")
-    report = build_report(list(folders.values()), out_dir / "report.html", title="Browser check")
+    report = build_report(list(folders.values()), out_dir / "report.html", title="Browser check").path
     seen = {"requests": [], "dialogs": [], "failed": [], "folders": folders}
     with sync_playwright() as playwright:
         browser = playwright.chromium.launch(executable_path=str(CHROMIUM), args=CHROMIUM_ARGS)

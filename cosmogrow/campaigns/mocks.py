@@ -12,24 +12,14 @@ Nothing here loops over replicas, prints or writes files.
 """
 
 import numpy as np
-from scipy import stats
 
 from ..simulation import population as simulate
 from ..config import load_toml
 from ..errors import ConfigError
-from ..inference.laplace import gradient, laplace, start_walkers
 from ..inference.fit import FitData, build_model
+from ..inference.k_estimate import CAMPAIGN_MAX_STEPS, MODES, estimate_k
 from ..outputs import sha256_file
-from ..inference.mcmc import default_walkers, run_ensemble
-from ..seeding import make_rng
 from ..simulation.plan import parse_sim_config
-
-MODES = ("fast", "mcmc")
-#: Step cap of one MCMC fit in a campaign (the run configuration's cap is for the real data, where
-#: one fit may take minutes; a campaign fits thousands). A capped chain is flagged converged=False.
-CAMPAIGN_MAX_STEPS = 3000
-_Z68 = stats.norm.ppf(0.84)
-_Z95 = stats.norm.ppf(0.975)
 
 
 def design_truth(model, theta_map, k):
@@ -44,19 +34,19 @@ def design_truth(model, theta_map, k):
     Returns
     -------
     dict with k, alpha (log10 Msun), beta, sigma_int (dex; a dict per sample when the scatter is
-    per sample), delta (dict method -> offset in dex, the zero-point method 0), gamma, s_pivot
+    per sample), delta (dict method -> offset in dex, the zero-point method 0), delta_host (dict
+    host type -> shift in dex, the zero-point type 0; empty without host types), gamma, s_pivot
     (log10 Msun), z_ref, and f_out / sigma_out when the model has outliers.
     """
-    values = dict(zip(model.names, np.asarray(theta_map, dtype=float).tolist()))
-    design = model.design
-    if "sigma_int" in values:
-        sigma_int = values["sigma_int"]
-    else:
-        sigma_int = {name: values[f"sigma_int[{name}]"] for name in design.scatter_names}
-    delta = {design.method_names[0]: 0.0}
-    delta.update({name: values[f"delta[{name}]"] for name in design.method_names[1:]})
+    layout = model.layout
+    theta = np.asarray(theta_map, dtype=float)
+    values = layout.to_dict(theta)
+    scatter = layout.scatter_by_name(theta)
+    sigma_int = scatter if len(scatter) > 1 else next(iter(scatter.values()))
+    delta = layout.offsets_by_label(theta, "method")
     truth = {"k": float(k), "alpha": values["alpha"], "beta": values.get("beta", 1.0),
-             "sigma_int": sigma_int, "delta": delta, "gamma": float(model.gamma),
+             "sigma_int": sigma_int, "delta": delta,
+             "delta_host": layout.offsets_by_label(theta, "host_type"), "gamma": float(model.gamma),
              "s_pivot": float(model.options.log_mstar_pivot), "z_ref": float(model.options.z_ref)}
     if "f_out" in values:
         truth.update(f_out=values["f_out"], sigma_out=values["sigma_out"])
@@ -154,62 +144,15 @@ def fit_replica(config, data, catalog, *, mode="fast", selection_aware=True, see
     selection_aware : bool, model the declared selection (False: the plain likelihood)
     seed : int or SeedSequence, seeds the walkers, the sampler and the draws
     max_steps : int, step cap of the MCMC (mode "mcmc"); the run's autocorr_factor still applies
-    n_draws : int, number of posterior draws of k to return (for simulation-based calibration):
-        Laplace Gaussian draws in fast mode, evenly spaced chain draws in MCMC mode
+    n_draws : int, number of posterior draws of k to return (for simulation-based calibration)
 
     Returns
     -------
-    dict: k (MAP in fast mode, posterior median in MCMC mode), k_std, interval68, interval95
-    (lists [low, high]), converged (bool), tau_max and n_steps (NaN and 0 in fast mode), and
-    k_draws (ndarray) when n_draws > 0.
+    dict: `inference.k_estimate.KEstimate.as_dict` (k, k_std, interval68, interval95, converged,
+    tau_max, n_steps, and k_draws when n_draws > 0).
     """
     if mode not in MODES:
         raise ConfigError(f"estimator.mode: expected one of {', '.join(MODES)}, got {mode!r}")
     model = build_model(config, data, selection_aware=selection_aware, catalog=catalog)
-    walker_seed, sampler_seed, draw_seed = _children(seed, 3)
-    approx = laplace(model)
-    i = model.index_k
-    if mode == "fast":
-        k_map, k_std = float(approx.theta[i]), float(approx.std[i])
-        out = {"k": k_map, "k_std": k_std,
-               "interval68": [k_map - _Z68 * k_std, k_map + _Z68 * k_std],
-               "interval95": [k_map - _Z95 * k_std, k_map + _Z95 * k_std],
-               "converged": laplace_is_sound(model, approx),
-               "tau_max": float("nan"), "n_steps": 0}
-        if n_draws:
-            out["k_draws"] = make_rng(draw_seed).normal(k_map, k_std, int(n_draws))
-        return out
-    n_walkers = default_walkers(model.ndim, config.sampler.walkers)
-    start = start_walkers(model, approx, n_walkers, make_rng(walker_seed))
-    chain = run_ensemble(model.log_prob, start, max_steps=int(max_steps),
-                         autocorr_factor=config.sampler.autocorr_factor,
-                         check_every=config.sampler.check_every, seed=sampler_seed)
-    k = chain.samples[:, i]
-    q = np.percentile(k, [2.5, 16, 50, 84, 97.5])
-    out = {"k": float(q[2]), "k_std": float(np.std(k, ddof=1)),
-           "interval68": [float(q[1]), float(q[3])], "interval95": [float(q[0]), float(q[4])],
-           "converged": bool(chain.converged), "tau_max": float(chain.tau_max),
-           "n_steps": int(chain.n_steps)}
-    if n_draws:
-        # evenly spaced over the (step-major) flat chain, i.e. spread over the whole run
-        out["k_draws"] = k[np.linspace(0, len(k) - 1, int(n_draws)).round().astype(int)]
-    return out
-
-
-def laplace_is_sound(model, approx, tolerance=0.01):
-    """Whether a MAP + Laplace result can be trusted: minus the Hessian is positive definite and
-    the Newton step from the MAP is below `tolerance` posterior standard deviations in every
-    parameter. (L-BFGS-B's own flag is not used: it often reports an abnormal line-search end
-    exactly at the optimum, where a Nelder-Mead polish moves no parameter by 1e-7.)"""
-    curvature = -np.asarray(approx.hessian)
-    if not np.all(np.isfinite(curvature)) or np.any(np.linalg.eigvalsh(curvature) <= 0):
-        return False
-    step = np.linalg.solve(curvature, gradient(model, approx.theta))
-    return bool(np.all(np.abs(step) < tolerance * approx.std))
-
-
-def _children(seed, n):
-    """n child SeedSequences of `seed` that do not depend on (or change) its spawn counter."""
-    parent = seed if isinstance(seed, np.random.SeedSequence) else np.random.SeedSequence(seed)
-    return [np.random.SeedSequence(parent.entropy, spawn_key=parent.spawn_key + (j,))
-            for j in range(n)]
+    return estimate_k(model, mode=mode, sampler=config.sampler, seed=seed, max_steps=max_steps,
+                      n_draws=n_draws).as_dict()

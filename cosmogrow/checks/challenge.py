@@ -19,14 +19,16 @@ line.
 
 import numpy as np
 
-from ..campaigns.mocks import MODES, draw_replica
+from ..campaigns.mocks import draw_replica
+from ..inference.k_estimate import MODES
 from ..errors import ConfigError
 from ..inference.laplace import laplace
+from ..inference.sensitivity import common_width, offset_subject
 from ..inference.verdicts import DEFAULT_THRESHOLD, p_from_sigma, verdicts_from_rows
 from ..seeding import child_seed
 from .claim_words import hypothesis_verdict, summary_lines
 from .context import Fitter, predictive_p, two_sided_mc_p
-from .significance import base_width, data_significance_rows, nuisances_at, offset_words
+from .significance import data_significance_rows, nuisances_at
 
 DEFAULT_REPLICAS = 200
 ESTIMATORS = ("selection_aware", "plain")
@@ -66,7 +68,7 @@ def challenge_claim(config, data, claim, *, replicas=DEFAULT_REPLICAS, mode="fas
     rows = data_significance_rows(model, [k for _, k in labels], start)
     fit_verdicts = dict(zip((label for label, _ in labels),
                             verdicts_from_rows(rows, [k for _, k in labels], threshold,
-                                               base_width(model), offset_words(model))))
+                                               common_width(model), offset_subject(model))))
     hypotheses = {}
     for h, (label, k) in enumerate(labels, start=1):
         truth, offsets = nuisances_at(model, start, k)

@@ -15,11 +15,10 @@ import numpy as np
 from scipy import stats
 
 from ..errors import ConfigError
-from ..inference.laplace import laplace, start_walkers
+from ..inference.laplace import laplace
 from ..inference.fit import FitData, build_model
-from ..campaigns.mocks import CAMPAIGN_MAX_STEPS, MODES, fit_replica, laplace_is_sound
-from ..inference.mcmc import default_walkers, run_ensemble
-from ..seeding import child_seed, make_rng
+from ..inference.k_estimate import CAMPAIGN_MAX_STEPS, MODES, estimate_k
+from ..seeding import child_seed
 from .significance import nuisances_at
 
 #: Default significance level of every null test (a test fails when its p-value is below it).
@@ -47,9 +46,9 @@ class Fitter:
     mode : "fast" (MAP + Laplace) or "mcmc"
     selection_aware : bool, model the declared selection (False: the plain likelihood)
 
-    Calling it with a catalogue returns ``{"k", "k_std", "converged"}`` (`replicas.fit_replica`).
-    Samples absent from the catalogue lose their selection; a configured zero-point method absent
-    from it is replaced by the automatic choice. With `selection_catalog` (same rows, other
+    Calling it with a catalogue returns ``{"k", "k_std", "converged"}`` (`fit_model`).
+    Samples absent from the catalogue lose their selection; a configured zero-point method or host
+    type absent from it is replaced by the automatic choice. With `selection_catalog` (same rows, other
     redshifts or labels) the selection thresholds are computed from that catalogue instead.
     """
 
@@ -65,8 +64,10 @@ class Fitter:
     def _config_for(self, catalog):
         options = self.config.model
         if options.zero_point_method and options.zero_point_method not in catalog.method_names:
-            return replace(self.config, model=replace(options, zero_point_method=None))
-        return self.config
+            options = replace(options, zero_point_method=None)
+        if options.zero_point_host_type and options.zero_point_host_type not in catalog.host_type_names:
+            options = replace(options, zero_point_host_type=None)
+        return self.config if options is self.config.model else replace(self.config, model=options)
 
     def _selections_for(self, catalog):
         present = set(catalog.sample_names)
@@ -84,14 +85,7 @@ class Fitter:
         return _model_with_selection_of(config, data, catalog, source, self.selection_aware)
 
     def __call__(self, catalog, *, seed=None, selection_catalog=None):
-        if selection_catalog is None:
-            data = FitData(catalog=catalog, files=[], selections=self._selections_for(catalog),
-                           cosmology=self.data.cosmology)
-            out = fit_replica(self._config_for(catalog), data, catalog, mode=self.mode,
-                              selection_aware=self.selection_aware, seed=seed)
-        else:
-            out = fit_model(self.config, self.model(catalog, selection_catalog), self.mode, seed)
-        return {"k": float(out["k"]), "k_std": float(out["k_std"]), "converged": bool(out["converged"])}
+        return fit_model(self.config, self.model(catalog, selection_catalog), self.mode, seed)
 
 
 def _model_with_selection_of(config, data, catalog, source, selection_aware):
@@ -100,22 +94,9 @@ def _model_with_selection_of(config, data, catalog, source, selection_aware):
 
 
 def fit_model(config, model, mode="fast", seed=None):
-    """k of a prebuilt model, reduced like `replicas.fit_replica` (MAP/Laplace or MCMC median/std)."""
-    approx = laplace(model)
-    i = model.index_k
-    if mode == "fast":
-        std = float(approx.std[i])
-        return {"k": float(approx.theta[i]), "k_std": std, "converged": laplace_is_sound(model, approx)}
-    parent = seed if isinstance(seed, np.random.SeedSequence) else np.random.SeedSequence(seed)
-    walker_seed, sampler_seed = (np.random.SeedSequence(parent.entropy, spawn_key=parent.spawn_key + (j,))
-                                 for j in range(2))
-    start = start_walkers(model, approx, default_walkers(model.ndim, config.sampler.walkers),
-                          make_rng(walker_seed))
-    chain = run_ensemble(model.log_prob, start, max_steps=CAMPAIGN_MAX_STEPS,
-                         autocorr_factor=config.sampler.autocorr_factor,
-                         check_every=config.sampler.check_every, seed=sampler_seed)
-    k = chain.samples[:, i]
-    return {"k": float(np.median(k)), "k_std": float(np.std(k, ddof=1)), "converged": chain.converged}
+    """k of a prebuilt model (`inference.k_estimate.estimate_k`): {"k", "k_std", "converged"}."""
+    out = estimate_k(model, mode=mode, sampler=config.sampler, seed=seed, max_steps=CAMPAIGN_MAX_STEPS)
+    return {"k": float(out.k), "k_std": float(out.k_std), "converged": bool(out.converged)}
 
 
 @dataclass(frozen=True, eq=False)

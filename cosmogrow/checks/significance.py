@@ -56,23 +56,6 @@ def offset_nuisances(model, theta):
             "pulls": {n: float(theta[i] / w) for n, i, w in zip(names, index, widths)}}
 
 
-def base_width(model):
-    """The offsets' common prior width (dex), or None when they differ (as the fit words it)."""
-    widths = offset_constraints(model)[1]
-    return float(widths[0]) if widths.size and np.all(widths == widths[0]) else None
-
-
-def offset_words(model):
-    """How the offsets are named in verdict sentences ("the mass-method offsets")."""
-    names = [model.names[i] for i in offset_constraints(model)[0]]
-    kinds = []
-    if any(name.startswith("delta[") for name in names):
-        kinds.append("mass-method")
-    if any(name.startswith("delta_host[") for name in names):
-        kinds.append("host-type")
-    return f"the {' and '.join(kinds) or 'model'} offsets"
-
-
 def nuisances_at(model, start, k):
     """Truth table of the data's design at coupling `k` and its offsets against their priors.
 

@@ -12,18 +12,17 @@ from ..data.catalog import Catalog
 from ..data.readers import read_catalogs
 from .crosscheck import crosscheck_options, crosscheck_warnings, run_crosscheck
 from ..errors import ConfigError
-from .laplace import find_map, laplace, start_walkers
+from .k_estimate import sample_posterior
+from .laplace import find_map, laplace
 from ..model.hostprior import parent_host_priors
 from ..model.likelihood import CoupledGrowthModel, build_design
 from ..outputs import package_versions
-from .mcmc import default_walkers, run_ensemble
-from ..seeding import make_rng
 from ..selection.compiled import SelectionSet, build_selection
 from .summary import (convergence_block, degeneracy_warnings, describe_parameters,
                       describe_samples, hypothesis_tests, offset_sensitivity)
 from .guards import identifiability, identifiability_warning, undeclared_methods_warning
 from .information import describe_information
-from .sensitivity import offset_constraints, sensitivity_rows, significance_block
+from .sensitivity import common_width, offset_subject, sensitivity_rows, significance_block
 from .verdicts import headline, verdict_options, verdicts_from_rows
 from ..seeding import child_seed
 
@@ -114,15 +113,9 @@ def run_fit(config, data, *, chain_path=None, on_check=None, selection_aware=Tru
     FitResult
     """
     model = build_model(config, data, selection_aware=selection_aware)
-    seed = np.random.SeedSequence(config.seed)
-    walker_seed, sampler_seed = seed.spawn(2)
     approx = laplace(model)
-    n_walkers = default_walkers(model.ndim, config.sampler.walkers)
-    start = start_walkers(model, approx, n_walkers, make_rng(walker_seed))
-    chain = run_ensemble(model.log_prob, start, max_steps=config.sampler.max_steps,
-                         autocorr_factor=config.sampler.autocorr_factor,
-                         check_every=config.sampler.check_every, chain_path=chain_path,
-                         seed=sampler_seed, on_check=on_check)
+    chain = sample_posterior(model, approx, config.sampler, seed=config.seed, chain_path=chain_path,
+                             on_check=on_check)
     summary = summarise(config, data, model, approx, chain, verdicts)
     return FitResult(model=model, laplace=approx, chain=chain, summary=summary)
 
@@ -186,15 +179,13 @@ def assess(config, data, model, approx, chain, verdicts=None):
     options = verdicts or verdict_options(config.raw.get("verdicts", {}), config.source)
     k_draws = chain.samples[:, model.index_k]
     rows = sensitivity_rows(model, approx, k_draws, options["k_refs"], seed=child_seed(config.seed, 2))
-    widths = offset_constraints(model)[1]
-    base_width = float(widths[0]) if widths.size and np.all(widths == widths[0]) else None
-    judged = verdicts_from_rows(rows, options["k_refs"], options["threshold"], base_width,
-                                "the mass-method offsets")
+    judged = verdicts_from_rows(rows, options["k_refs"], options["threshold"], common_width(model),
+                                offset_subject(model))
     guard = identifiability(k_draws, model.priors["k"], data.catalog.z)
     return {"significance": significance_block(rows, model), "sensitivity": rows,
             "verdicts": judged, "headline": headline(judged),
             "information": describe_information(model, approx, data.catalog),
-            "identifiability": {**guard, "threshold": options["threshold"]},
+            "identifiability": guard,
             "warnings": [identifiability_warning(guard), undeclared_methods_warning(data.catalog)]}
 
 

@@ -8,7 +8,7 @@ calibration or host-type difference between the samples is then absorbed into k.
 
 import numpy as np
 
-from ..data.catalog import DEFAULT_METHOD
+from ..data.catalog import DEFAULT_HOST_TYPE, DEFAULT_METHOD
 
 #: The central 95 % interval of k spanning more than this fraction of the prior range: not identified.
 FILL_FRACTION = 0.5
@@ -65,6 +65,9 @@ def undeclared_methods_warning(catalog):
     if max(medians.values()) - min(medians.values()) <= 0:
         return None
     ranges = ", ".join(f"{name} at z ≈ {value:.2g}" for name, value in medians.items())
+    typed = np.any(np.asarray(catalog.host_type) != DEFAULT_HOST_TYPE)
+    assumed = "one calibration" if typed else "one calibration and one host type"
+    absorbed = "calibration" if typed else "calibration or host-type"
     return (f"no sample declares its black-hole mass method ({ranges}): the fit assumes all masses "
-            f"share one calibration and one host type, so any calibration or host-type difference "
-            f"between the samples is absorbed into k. Declare a method column or sample.method.")
+            f"share {assumed}, so any {absorbed} difference between the samples is absorbed into k. "
+            f"Declare a method column or sample.method.")

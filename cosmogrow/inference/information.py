@@ -1,5 +1,5 @@
-"""What carries the constraint on k: shares of the Fisher information by sample and source
-(docs/method.md#verdicts).
+"""What carries the constraint on k: shares of the Fisher information by sample, source and host
+type (docs/method.md#verdicts).
 
 At the MAP θ̂ the observed information of the likelihood is a sum over objects, so over any
 partition into groups g: F = Σ_g F_g, F_g = −∇∇ᵀ Σ_{i∈g} ln L_i(θ̂). The offset constraint terms add
@@ -93,17 +93,18 @@ def _fraction(part, whole):
 
 
 def describe_information(model, approx, catalog):
-    """The summary's `information` block: per sample, per source (when sources are given), one
-    sentence naming what carries the constraint on k."""
+    """The summary's `information` block: per sample, per source and per host type (when the
+    catalogue names more than one), one sentence naming what carries the constraint on k."""
     scale = 0.2 * np.clip(approx.std, 1e-6, None)
     per_sample, full = information_shares(model, approx.theta, scale, catalog.sample)
     block = {"measure": "Fisher information on k after profiling the nuisances, 1/(F^-1)_kk, at the "
                         "MAP, with the offset constraints as configured",
              "sigma_k": float(1.0 / np.sqrt(full)) if full > 0 else None,
-             "per_sample": per_sample, "per_source": None}
-    sources = list(dict.fromkeys(np.asarray(catalog.source).tolist()))
-    if len(sources) > 1:
-        block["per_source"], _ = information_shares(model, approx.theta, scale, catalog.source)
+             "per_sample": per_sample}
+    for kind, labels in (("per_source", catalog.source), ("per_host_type", catalog.host_type)):
+        block[kind] = None
+        if len(set(np.asarray(labels).tolist())) > 1:
+            block[kind], _ = information_shares(model, approx.theta, scale, labels)
     block["text"] = information_sentence(per_sample, "sample")
     return block
 

@@ -22,26 +22,54 @@ from .laplace import find_map, laplace
 from .summary import describe_weighted, savage_dickey, wilks_sigma
 from .verdicts import WIDTH_SCALES, k_key
 
-DEFAULT_DRAWS = 3000
+# Importance draws per reweighted row: DRAW_BUDGET object-evaluations, between MIN and MAX draws.
+# σ(k) shrinks as 1/√N, so fewer draws at large N keep the Monte Carlo error far below 0.05 in k.
+DRAW_BUDGET = 4_000_000
+MIN_DRAWS, MAX_DRAWS = 400, 3000
 # Student-t proposal for the importance reweighting: heavier tails than the Laplace Gaussian.
 PROPOSAL_DF = 5
 
 
+_GROUP_WORDS = {"method": "mass methods", "host_type": "host types"}
+
+
 def offset_constraints(model):
-    """Indices and configured prior widths (dex) of every offset parameter of a model."""
-    return np.asarray(model._i_delta, dtype=int), np.asarray(model.delta_widths, dtype=float)
+    """Indices and configured prior widths (dex) of every offset parameter of a model (mass
+    methods and host types)."""
+    return (np.asarray(model.layout.offset_indices, dtype=int),
+            np.asarray(model.offset_widths, dtype=float))
+
+
+def offset_subject(model):
+    """What the offset constraints act on, in words ("the mass-method offsets", ...)."""
+    kinds = [entry.kind for entry in model.layout.offset_entries()]
+    words = [{"method": "mass-method", "host_type": "host-type"}[kind] for kind in dict.fromkeys(kinds)]
+    return f"the {' and '.join(words)} offsets" if words else "the offsets"
+
+
+def common_width(model):
+    """The one configured width (dex) shared by every offset, or None when they differ."""
+    widths = offset_constraints(model)[1]
+    return float(widths[0]) if widths.size and np.all(widths == widths[0]) else None
 
 
 def offset_label(model, scale=1.0):
-    """Plain description of the offset constraint, e.g. "offsets constrained by N(0, 0.3 dex)"."""
-    _, widths = offset_constraints(model)
+    """Plain description of the offset constraint, e.g. "offsets constrained by N(0, 0.3 dex)";
+    per kind when mass-method and host-type widths differ."""
+    index, widths = offset_constraints(model)
     if widths.size == 0:
         return "no offset parameter"
     if scale is None:
         return "offsets unconstrained"
-    values = sorted(set(np.round(widths * scale, 6)))
-    text = ", ".join(f"{w:.2g}" for w in values)
-    return f"offsets constrained by N(0, {text} dex)"
+    if common_width(model) is not None:
+        return f"offsets constrained by N(0, {widths[0] * scale:.2g} dex)"
+    first = model.layout.offsets.start
+    by_kind = {}
+    for entry in model.layout.offset_entries():
+        by_kind.setdefault(entry.kind, set()).add(round(float(widths[entry.index - first] * scale), 6))
+    parts = [f"N(0, {', '.join(f'{w:.2g}' for w in sorted(values))} dex) for {_GROUP_WORDS[kind]}"
+             for kind, values in by_kind.items()]
+    return "offsets constrained by " + " and ".join(parts)
 
 
 class ConstrainedLikelihood:
@@ -115,6 +143,8 @@ def reweighted_draws(objective, start, n_draws, rng):
     draws = np.atleast_2d(proposal.rvs(size=n_draws, random_state=rng))
     log_weight = objective.log_prob(draws) - proposal.logpdf(draws)
     log_weight[~np.isfinite(log_weight)] = -np.inf
+    if not np.any(np.isfinite(log_weight)):  # no draw inside the ranges: report no effective draw
+        return draws, np.full(len(draws), 1.0 / len(draws)), 0.0
     weights = np.exp(log_weight - np.max(log_weight))
     weights /= weights.sum()
     return draws, weights, float(1.0 / np.sum(weights**2))
@@ -130,7 +160,12 @@ def _row(setting, value, label, k, sigmas, bayes, k_range, method, ess=None):
             "effective_draws": ess}
 
 
-def sensitivity_rows(model, approx, k_draws, k_refs, *, n_draws=DEFAULT_DRAWS, seed=None):
+def default_draws(n_objects):
+    """Importance draws per reweighted row for a catalogue of `n_objects` (see DRAW_BUDGET)."""
+    return int(np.clip(DRAW_BUDGET // max(n_objects, 1), MIN_DRAWS, MAX_DRAWS))
+
+
+def sensitivity_rows(model, approx, k_draws, k_refs, *, n_draws=None, seed=None):
     """The sensitivity table of a fit (docs/method.md#verdicts).
 
     Parameters
@@ -139,7 +174,7 @@ def sensitivity_rows(model, approx, k_draws, k_refs, *, n_draws=DEFAULT_DRAWS, s
     approx : LaplaceResult of the model's posterior (its MAP starts every maximisation)
     k_draws : ndarray, posterior draws of k from the MCMC chain (the configured row)
     k_refs : sequence of float, reference k values (0, 3 and claims)
-    n_draws : int, importance-sampling draws per reweighted row
+    n_draws : int, importance-sampling draws per reweighted row (default `default_draws`)
     seed : int or SeedSequence for the proposal draws
 
     Returns
@@ -148,6 +183,7 @@ def sensitivity_rows(model, approx, k_draws, k_refs, *, n_draws=DEFAULT_DRAWS, s
     sigma_by_k, bayes_factor_k0, k_prior, k_prior_width, method, effective_draws}
     """
     rng = np.random.default_rng(seed)
+    n_draws = n_draws or default_draws(len(model.design.m_obs))
     k_range = tuple(model.priors["k"])
     has_offsets = offset_constraints(model)[0].size > 0
     scales = WIDTH_SCALES if has_offsets else (1.0,)
@@ -170,7 +206,7 @@ def sensitivity_rows(model, approx, k_draws, k_refs, *, n_draws=DEFAULT_DRAWS, s
                          method, ess))
     if has_offsets:
         rows.append(_unconstrained_row(model, approx, k_refs, k_range))
-    rows += [_k_range_row(k_draws, k_range, factor, configured, model) for factor in (0.5, 2.0)]
+    rows += [_k_range_row(k_draws, k_range, factor, configured) for factor in (0.5, 2.0)]
     return rows
 
 
@@ -186,7 +222,7 @@ def _unconstrained_row(model, approx, k_refs, k_range):
                 "maximum likelihood ± profile curvature (no prior on the offsets, no posterior)")
 
 
-def _k_range_row(k_draws, k_range, factor, sigmas, model):
+def _k_range_row(k_draws, k_range, factor, sigmas):
     """The k prior range scaled about its centre: the posterior truncated or extended, B01 rescaled.
 
     For a uniform prior of width W, B01 = W L(k0) / ∫ L dk over the range; a new range W' gives

@@ -8,6 +8,7 @@ OFFSET_WIDTHS = (0.05, 0.1, 0.2, 0.3, 0.5, 1.0)
 DEGENERACY_CORRELATION = 0.9
 # sigma(k) growing more than this factor between offset priors of 0.05 and 1 dex is a degeneracy.
 WIDENING = 2.0
+_KIND_WORDS = {"method": "method", "host_type": "host type"}
 
 
 def describe_samples(values):
@@ -96,11 +97,11 @@ def offset_sensitivity(model, laplace_result, widths=OFFSET_WIDTHS):
     The likelihood's curvature is the posterior's minus the prior's, so each width costs one
     matrix inverse, no refit (the MAP is held fixed: a first-order picture).
     """
-    if model._i_delta.size == 0:
+    idx = model.layout.offset_indices
+    if idx.size == 0:
         return []
     curvature = -laplace_result.hessian.copy()
-    idx = model._i_delta
-    curvature[idx, idx] -= 1.0 / model.delta_widths**2
+    curvature[idx, idx] -= 1.0 / model.offset_widths**2
     rows = []
     for width in widths:
         trial = curvature.copy()
@@ -115,32 +116,34 @@ def offset_sensitivity(model, laplace_result, widths=OFFSET_WIDTHS):
 
 
 def degeneracy_warnings(model, catalog, laplace_result, sensitivity=None):
-    """Plain-language warnings where k is degenerate with a mass-method offset.
+    """Plain-language warnings where k is degenerate with an offset (mass method or host type).
 
     An offset counts as degenerate with k when their Laplace correlation exceeds
     DEGENERACY_CORRELATION, or when sigma(k) grows more than WIDENING-fold as the offset prior
     widens from the narrowest to the widest width of `offset_sensitivity`.
     """
     warnings = []
-    names = model.names
     cov = laplace_result.covariance
     std = np.sqrt(np.clip(np.diag(cov), 1e-300, None))
-    zero_point = model.design.method_names[0]
-    z_zero = catalog.z[catalog.method == zero_point]
+    i_k = model.index_k
     rows = sensitivity if sensitivity is not None else offset_sensitivity(model, laplace_result)
     widening = rows[-1]["k_std"] / rows[0]["k_std"] if rows else 1.0
-    for index in model._i_delta:
-        method = names[index][len("delta["):-1]
-        corr = cov[0, index] / (std[0] * std[index])
-        z_method = catalog.z[catalog.method == method]
+    first = model.layout.offsets.start
+    for entry in model.layout.offset_entries():
+        index, label, zero_point = entry.index, entry.label, entry.zero_point
+        labels = getattr(catalog, entry.kind)
+        z_zero = catalog.z[labels == zero_point]
+        corr = cov[i_k, index] / (std[i_k] * std[index])
+        z_group = catalog.z[labels == label]
         if abs(corr) > DEGENERACY_CORRELATION or widening > WIDENING:
             warnings.append(
-                f"k is degenerate with the offset of method '{method}' against '{zero_point}' "
-                f"(correlation {corr:+.2f}; redshifts {z_method.min():.3g}-{z_method.max():.3g} vs "
+                f"k is degenerate with the offset of {_KIND_WORDS[entry.kind]} '{label}' against "
+                f"'{zero_point}' "
+                f"(correlation {corr:+.2f}; redshifts {z_group.min():.3g}-{z_group.max():.3g} vs "
                 f"{z_zero.min():.3g}-{z_zero.max():.3g}; sigma(k) grows {widening:.1f}-fold as the "
                 f"offset prior widens from {rows[0]['offset_prior_width']:g} to "
                 f"{rows[-1]['offset_prior_width']:g} dex): the width of k is set by the offset prior "
-                f"({model.delta_widths[list(model._i_delta).index(index)]:.2g} dex), not by the data.")
+                f"({model.offset_widths[index - first]:.2g} dex), not by the data.")
     if model.gamma != 0:
         warnings.append(f"host growth gamma = {model.gamma:g} is fixed: from masses alone only "
                         f"k - beta*gamma is identified, so k depends on that choice.")

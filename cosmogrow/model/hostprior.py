@@ -32,7 +32,8 @@ def _selected_host_log_like(params, rows, parts, model, catalog, selection, cent
     # conditional (given s_obs) and parent latent masses stacked, for one selection call
     mu = np.zeros((2 * n_params, n))
     var = np.ones((2 * n_params, n))
-    base = parts["alpha"] - parts["k_eff"] * x
+    # the latent mean of model.mean.latent_mean, summed in this order since the pinned fits were made
+    base = parts["alpha"] - parts["k_eff"] * x + parts["host_offset"][rows]
     mu[:n_params, rows] = base + beta * (s_true - centred_pivot)
     var[:n_params, rows] = sigma2 + beta**2 * shrink * err2
     mu[n_params:, rows] = base + beta * (centre - centred_pivot)

@@ -1,17 +1,23 @@
 """The population model and its posterior (docs/method.md#model), vectorised over walkers and objects.
 
-m_obs,i ~ N(mu_i, V_i),  mu_i = alpha + beta (s_i - s_pivot) - (k - beta gamma) x_i + delta_method(i),
+m_obs,i ~ N(mu_i, V_i),  mu_i = alpha + beta (s_i - s_pivot) - (k - beta gamma) x_i
+                                + delta_host(i) + delta_method(i),
 V_i = sigma_int^2 + e_m,i^2 + beta^2 e_s,i^2,  x_i = log10[(1 + z_i) / (1 + z_ref)].
+The host-type offset shifts the latent black-hole mass (a selection on it sees the shift); the
+mass-method offset is a measurement offset of m_obs only.
 
-With a selection set, each object's likelihood is conditioned on its selection (§4). The model
+With a selection set, each object's likelihood is conditioned on its selection (docs/method.md#selection). The model
 never validates its input data (the catalogue did) and returns -inf outside the prior.
 """
-
-from dataclasses import dataclass
 
 import numpy as np
 
 from ..errors import ConfigError
+from .design import (  # noqa: F401  (re-exported: the design is built with the model)
+    Design, build_design, calibrated_hosts, choose_zero_point, choose_zero_point_host_type, lever_arm,
+    observed_host_moments)
+from .layout import OffsetGroup, ParameterLayout
+from .mean import latent_mean
 
 DEFAULT_PRIORS = {
     "k": (-10.0, 10.0),
@@ -24,102 +30,6 @@ DEFAULT_PRIORS = {
 LOG_2PI = np.log(2.0 * np.pi)
 # Walker chunks keep temporaries near this many elements (≈ 16 MB per float array).
 _CHUNK_ELEMENTS = 2_000_000
-
-
-@dataclass(frozen=True, eq=False)
-class Design:
-    """The data as plain arrays, in the order the likelihood uses them."""
-
-    x: np.ndarray          # log10[(1+z)/(1+z_ref)]
-    s_centred: np.ndarray  # log M* - pivot, log10 Msun
-    m_obs: np.ndarray      # log M_BH, log10 Msun
-    m_err: np.ndarray      # dex
-    s_err: np.ndarray      # dex
-    method_index: np.ndarray   # 0 = zero-point method
-    scatter_index: np.ndarray  # 0 when the scatter is shared
-    method_names: tuple        # zero-point first
-    scatter_names: tuple
-
-
-def lever_arm(z, z_ref=0.0):
-    """x = log10[(1+z)/(1+z_ref)], the lever arm of coupled growth."""
-    return np.log10((1.0 + np.asarray(z, dtype=float)) / (1.0 + z_ref))
-
-
-def choose_zero_point(catalog):
-    """Default zero-point method: the most common method of the lowest-median-redshift sample."""
-    medians = {name: np.median(catalog.z[catalog.sample == name]) for name in catalog.sample_names}
-    lowest = min(medians, key=medians.get)
-    methods, counts = np.unique(catalog.method[catalog.sample == lowest].astype(str), return_counts=True)
-    return str(methods[np.argmax(counts)])
-
-
-def calibrated_hosts(catalog, mode="calibrated", host_priors=None):
-    """Host masses and their errors as the likelihood uses them.
-
-    "first_order": the observed log M* with its error (docs/method.md#model, first-order errors in
-    variables). "calibrated" (default): regression calibration (Carroll et al. 2006, Measurement
-    Error in Nonlinear Models, ch. 4): within each sample the true hosts are taken as Gaussian with
-    the sample's observed mean and deconvolved variance tau^2 = var(s_obs) - mean(e_s^2), so
-    s_true | s_obs ~ N((tau^2 s_obs + e_s^2 mean) / (tau^2 + e_s^2), tau^2 e_s^2 / (tau^2 + e_s^2)).
-    Without it, host errors scattering objects across a steep mass function bias each sample's
-    relation differently, and the difference leaks into k. The exact treatment is Kelly (2007).
-    `host_priors` ({sample: (mean, variance)} of the true hosts) replaces a sample's observed
-    moments, e.g. by the parent (pre-selection) distribution from `hostprior.parent_host_priors`.
-
-    Returns
-    -------
-    log_mstar : ndarray, log10 Msun;  log_mstar_err : ndarray, dex
-    """
-    s_obs = np.asarray(catalog.log_mstar, dtype=float)
-    err2 = np.asarray(catalog.log_mstar_err, dtype=float) ** 2
-    if mode == "first_order":
-        return s_obs, np.sqrt(err2)
-    host, host_var = s_obs.copy(), err2.copy()
-    host_priors = host_priors or {}
-    for name in catalog.sample_names:
-        rows = catalog.sample == name
-        if name in host_priors:
-            centre, spread = host_priors[name]
-        elif rows.sum() < 5:
-            continue  # too few hosts to estimate their spread: keep first order
-        else:
-            centre, spread = observed_host_moments(s_obs[rows], err2[rows])
-        shrink = spread / (spread + err2[rows])
-        host[rows] = shrink * s_obs[rows] + (1 - shrink) * centre
-        host_var[rows] = shrink * err2[rows]
-    return host, np.sqrt(host_var)
-
-
-def observed_host_moments(s_obs, err2):
-    """Mean and deconvolved variance of a sample's true hosts (floored at 10 % of the observed)."""
-    variance = np.var(s_obs, ddof=1)
-    return float(np.mean(s_obs)), float(max(variance - np.mean(err2), 0.1 * variance, 1e-4))
-
-
-def build_design(catalog, options, host_priors=None):
-    """Arrays of the likelihood from a Catalog and ModelOptions (host_priors: see calibrated_hosts)."""
-    zero_point = options.zero_point_method or choose_zero_point(catalog)
-    methods = list(catalog.method_names)
-    if zero_point not in methods:
-        raise ConfigError(f"model.zero_point_method: {zero_point!r} is not a method of the data; "
-                          f"expected one of {', '.join(methods)}")
-    method_names = (zero_point,) + tuple(m for m in methods if m != zero_point)
-    lookup = {name: i for i, name in enumerate(method_names)}
-    if options.scatter == "per_sample":
-        scatter_names = catalog.sample_names
-    else:
-        scatter_names = ("all",)
-    scatter_lookup = {name: i for i, name in enumerate(scatter_names)}
-    scatter_index = (np.array([scatter_lookup[s] for s in catalog.sample], dtype=np.intp)
-                     if len(scatter_names) > 1 else np.zeros(len(catalog), dtype=np.intp))
-    host, host_err = calibrated_hosts(catalog, options.host_errors, host_priors)
-    return Design(x=lever_arm(catalog.z, options.z_ref),
-                  s_centred=host - options.log_mstar_pivot,
-                  m_obs=np.asarray(catalog.log_mbh, dtype=float), m_err=np.asarray(catalog.log_mbh_err),
-                  s_err=host_err,
-                  method_index=np.array([lookup[m] for m in catalog.method], dtype=np.intp),
-                  scatter_index=scatter_index, method_names=method_names, scatter_names=scatter_names)
 
 
 class CoupledGrowthModel:
@@ -159,34 +69,29 @@ class CoupledGrowthModel:
     # ----- parameter layout -------------------------------------------------------------
     def _build_layout(self):
         d = self.design
-        names = ["k", "alpha"] + (["beta"] if self.relation else [])
-        scatter = (["sigma_int"] if len(d.scatter_names) == 1
-                   else [f"sigma_int[{s}]" for s in d.scatter_names])
-        offsets = [f"delta[{m}]" for m in d.method_names[1:]]
-        outliers = ["f_out", "sigma_out"] if self.options.outliers else []
-        self.names = tuple(names + scatter + offsets + outliers)
-        self.ndim = len(self.names)
-        self._i_beta = 2 if self.relation else None
-        self._i_scatter = np.arange(len(names), len(names) + len(scatter))
-        self._i_delta = np.arange(self._i_scatter[-1] + 1, self._i_scatter[-1] + 1 + len(offsets))
-        lows, highs = [], []
-        for name in self.names:
-            base = name.split("[")[0]
-            low, high = self.priors.get(base, (-np.inf, np.inf))
-            lows.append(low)
-            highs.append(high)
-        self.lower = np.array(lows)
-        self.upper = np.array(highs)
-        widths = self.options.method_offset_width
-        if isinstance(widths, dict):
-            default = widths.get("default", 0.3)
-            self.delta_widths = np.array([widths.get(m, default) for m in d.method_names[1:]], dtype=float)
-        else:
-            self.delta_widths = np.full(len(offsets), float(widths))
+        groups = (OffsetGroup("method", d.method_names),)
+        widths = [offset_widths(self.options.method_offset_width, d.method_names[1:])]
+        if d.host_type_names:
+            groups += (OffsetGroup("host_type", d.host_type_names),)
+            widths.append(offset_widths(self.options.host_offset_width, d.host_type_names[1:]))
+        self.layout = ParameterLayout(relation=self.relation, scatter_names=d.scatter_names,
+                                      offset_groups=groups, outliers=bool(self.options.outliers))
+        self.lower, self.upper = self.layout.bounds(self.priors)
+        self.offset_widths = np.concatenate(widths)
+        self._host_offsets = len(d.host_type_names) > 1
 
     @property
-    def index_k(self):
-        return 0
+    def names(self) -> tuple:
+        """Parameter names in vector order (see `ParameterLayout`)."""
+        return self.layout.names
+
+    @property
+    def ndim(self) -> int:
+        return self.layout.ndim
+
+    @property
+    def index_k(self) -> int:
+        return self.layout.index_k
 
     def prior_is_proper_in_k(self):
         low, high = self.priors["k"]
@@ -200,9 +105,10 @@ class CoupledGrowthModel:
         out = np.where(inside, 0.0, -np.inf)
         uniform = np.isfinite(self.lower) & np.isfinite(self.upper)
         out = out - np.sum(np.log(self.upper[uniform] - self.lower[uniform]))
-        if self._i_delta.size:
-            z = theta[:, self._i_delta] / self.delta_widths
-            out = out - 0.5 * np.sum(z**2 + LOG_2PI + 2 * np.log(self.delta_widths), axis=1)
+        offsets = self.layout.offsets
+        if offsets.stop > offsets.start:
+            z = theta[:, offsets] / self.offset_widths
+            out = out - 0.5 * np.sum(z**2 + LOG_2PI + 2 * np.log(self.offset_widths), axis=1)
         return out
 
     def log_likelihood(self, theta):
@@ -230,34 +136,50 @@ class CoupledGrowthModel:
 
     def components(self, theta):
         """Per-object pieces of the mean at one parameter vector: a dict with alpha, beta,
-        k_eff (k - beta gamma), sigma2 (intrinsic variance per object) and delta (offset per object)."""
+        k_eff (k - beta gamma), sigma2 (intrinsic variance per object, dex²), delta (mass-method
+        offset per object, dex) and host_offset (host-type offset per object, dex)."""
         theta = np.asarray(theta, dtype=float)
         d = self.design
-        sig2 = theta[self._i_scatter] ** 2
-        delta_all = np.concatenate([[0.0], theta[self._i_delta]])
-        beta = theta[2] if self.relation else 1.0
-        return {"alpha": theta[1], "beta": beta, "k_eff": theta[0] - beta * self.gamma,
+        layout = self.layout
+        sig2 = theta[layout.scatter] ** 2
+        delta_all = np.concatenate([[0.0], theta[layout.group_slice("method")]])
+        host_all = np.concatenate([[0.0], theta[layout.group_slice("host_type")]])
+        beta = theta[layout.index_beta] if self.relation else 1.0
+        return {"alpha": theta[layout.index_alpha], "beta": beta,
+                "k_eff": theta[layout.index_k] - beta * self.gamma,
                 "sigma2": sig2[d.scatter_index] if sig2.size > 1 else np.full(len(d.x), sig2[0]),
-                "delta": delta_all[d.method_index]}
+                "delta": delta_all[d.method_index], "host_offset": host_all[d.host_index]}
 
     def per_object_log_likelihood(self, theta):
         """Log likelihood of every object at one parameter vector, shape (N,)."""
         return self._log_likelihood_chunk(np.atleast_2d(theta), reduce=False)[0]
 
+    def latent_mean(self, theta) -> np.ndarray:
+        """Mean latent log M_BH (log10 Msun) at the observed epoch, shape (n_walkers, N): the
+        shared forward model `model.mean.latent_mean` with this model's hosts and offsets."""
+        theta = np.atleast_2d(theta)
+        layout, d = self.layout, self.design
+        beta = _column(theta, layout.index_beta) if self.relation else 1.0
+        k_eff = _column(theta, layout.index_k) - beta * self.gamma
+        # a host-type offset is a real shift of the latent mass, seen by a selection on it
+        host = (layout.per_object_offsets(theta, "host_type", d.host_index)
+                if self._host_offsets else None)
+        return latent_mean(_column(theta, layout.index_alpha), beta, k_eff, d.s_centred, d.x,
+                           host_offset=host)
+
     def _latent(self, theta):
         """Per object and walker: latent mean mu_true, offset delta, latent variance var_lat and the
         total variance of m_obs (docs/method.md#model)."""
         d = self.design
-        k, alpha = theta[:, 0:1], theta[:, 1:2]
-        beta = theta[:, 2:3] if self.relation else 1.0
-        sig2 = theta[:, self._i_scatter] ** 2
+        layout = self.layout
+        beta = _column(theta, layout.index_beta) if self.relation else 1.0
+        sig2 = theta[:, layout.scatter] ** 2
         sig2_obj = sig2 if sig2.shape[1] == 1 else sig2[:, d.scatter_index]
-        if self._i_delta.size:
-            delta_all = np.concatenate([np.zeros((len(theta), 1)), theta[:, self._i_delta]], axis=1)
-            delta = delta_all[:, d.method_index]
+        if len(layout.group("method").free_labels):
+            delta = layout.per_object_offsets(theta, "method", d.method_index)
         else:
             delta = 0.0
-        mu_true = alpha + beta * d.s_centred - (k - beta * self.gamma) * d.x
+        mu_true = self.latent_mean(theta)
         if self.relation:
             var_lat = sig2_obj + beta**2 * self._s_err2
             var = var_lat + self._m_err2
@@ -279,8 +201,8 @@ class CoupledGrowthModel:
         resid2 = (d.m_obs - mu_true - delta) ** 2
         log_like = -0.5 * (resid2 / var + np.log(var) + LOG_2PI)
         if self.options.outliers:
-            f_out = theta[:, -2:-1]
-            var_out = var + theta[:, -1:] ** 2
+            f_out = _column(theta, self.layout.index_f_out)
+            var_out = var + _column(theta, self.layout.index_sigma_out) ** 2
             log_out = -0.5 * (resid2 / var_out + np.log(var_out) + LOG_2PI)
             log_like = np.logaddexp(np.log1p(-f_out) + log_like, np.log(f_out) + log_out)
         if self.selection is not None:
@@ -293,20 +215,21 @@ class CoupledGrowthModel:
         d = self.design
         target = d.m_obs - (0.0 if self.relation else d.s_centred)
         columns = [np.ones_like(d.x)] + ([d.s_centred] if self.relation else []) + [-d.x]
-        columns += [(d.method_index == j).astype(float) for j in range(1, len(d.method_names))]
+        columns += _offset_dummies(d)
         design_matrix = np.column_stack(columns)
         coef, *_ = np.linalg.lstsq(design_matrix, target, rcond=None)
         resid = target - design_matrix @ coef
         scatter = np.sqrt(max(np.var(resid) - np.mean(self._ev_ratio), 0.05**2))
+        layout = self.layout
         theta = np.empty(self.ndim)
-        theta[0] = coef[2 if self.relation else 1]
-        theta[1] = coef[0]
+        theta[layout.index_k] = coef[2 if self.relation else 1]
+        theta[layout.index_alpha] = coef[0]
         if self.relation:
-            theta[2] = coef[1]
-        theta[self._i_scatter] = scatter
-        theta[self._i_delta] = coef[(3 if self.relation else 2):]
+            theta[layout.index_beta] = coef[1]
+        theta[layout.scatter] = scatter
+        theta[layout.offsets] = coef[(3 if self.relation else 2):]
         if self.options.outliers:
-            theta[-2:] = (0.05, 1.0)
+            theta[layout.outlier] = (0.05, 1.0)
         return np.clip(theta, self.lower + 1e-3, self.upper - 1e-3)
 
 
@@ -321,20 +244,21 @@ class GaussianMoments:
 
     def __init__(self, model):
         d = model.design
+        layout = model.layout
         self.model = model
-        n_methods = len(d.method_names) - 1
-        dummies = [(d.method_index == j + 1).astype(float) for j in range(n_methods)]
+        dummies = _offset_dummies(d)
         if model.relation:
             columns = [np.ones_like(d.x), d.s_centred + model.gamma * d.x, -d.x] + dummies
             self.offset = float(np.mean(d.m_obs))
             target = d.m_obs - self.offset
-            self.linear_index = [1, 2, 0] + list(model._i_delta)
+            self.linear_index = ([layout.index_alpha, layout.index_beta, layout.index_k]
+                                 + list(layout.offset_indices))
         else:
             columns = [np.ones_like(d.x), -d.x] + dummies
             target = d.m_obs - d.s_centred - model.gamma * d.x
             self.offset = float(np.mean(target))
             target = target - self.offset
-            self.linear_index = [1, 0] + list(model._i_delta)
+            self.linear_index = [layout.index_alpha, layout.index_k] + list(layout.offset_indices)
         design_matrix = np.column_stack(columns)
         p = design_matrix.shape[1]
         self.upper = np.triu_indices(p)
@@ -351,10 +275,11 @@ class GaussianMoments:
 
     def log_likelihood(self, theta):
         model = self.model
-        sig2 = theta[:, model._i_scatter] ** 2
+        layout = model.layout
+        sig2 = theta[:, layout.scatter] ** 2
         sig2_obj = sig2 if self._group_matrix is None else sig2 @ self._group_matrix
         if model.relation:
-            var = sig2_obj + self._m_err2 + theta[:, 2:3] ** 2 * self._s_err2
+            var = sig2_obj + self._m_err2 + _column(theta, layout.index_beta) ** 2 * self._s_err2
         else:
             var = sig2_obj + self._ev_ratio
         log_det = np.log(var).sum(axis=1)
@@ -369,3 +294,24 @@ class GaussianMoments:
         cross_y = np.sum(lin * sums[:, n_cross:n_cross + p], axis=1)
         chi2 = sums[:, -1] - 2 * cross_y + quad
         return -0.5 * (chi2 + log_det + self.n_obj * LOG_2PI)
+
+
+def _offset_dummies(design):
+    """Indicator columns of every offset parameter (methods, then host types), as in the layout."""
+    out = [(design.method_index == j).astype(float) for j in range(1, len(design.method_names))]
+    out += [(design.host_index == j).astype(float) for j in range(1, len(design.host_type_names))]
+    return out
+
+
+def _column(theta, index):
+    """Column `index` of a (n_walkers, ndim) array, kept two-dimensional for broadcasting."""
+    return theta[:, index:index + 1]
+
+
+def offset_widths(setting, labels):
+    """Gaussian prior widths (dex) of the offsets of `labels`: one number for all, or a table
+    label -> width with an optional "default" (0.3 dex when absent)."""
+    if isinstance(setting, dict):
+        default = setting.get("default", 0.3)
+        return np.array([setting.get(label, default) for label in labels], dtype=float)
+    return np.full(len(labels), float(setting))

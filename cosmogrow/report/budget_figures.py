@@ -1,26 +1,16 @@
-"""Figures of the dark-energy budget and of the stellar-remnant test (matplotlib, Agg backend).
-
-Drawn for print: thick lines, a colour-blind-safe palette, every axis labelled with its unit.
+"""Figures of the dark-energy budget and of the stellar-remnant test, in the house style
+(`report.style`: palette, ink, label sizes, no top/right spines), every axis labelled with its unit.
 """
 
 import numpy as np
 
 from ..consequences.remnants import birth_mass
+from . import style
+from .style import plt
 
-_INK = "#222222"
-_BLUE = "#0072B2"      # Okabe & Ito palette
-_ORANGE = "#D55E00"
-_GREY = "#8c8c8c"
-_OBJECT_COLOURS = ("#0072B2", "#D55E00", "#009E73", "#CC79A7", "#E69F00", "#56B4E9")
+style.apply()
 
-
-def _pyplot():
-    import matplotlib
-
-    matplotlib.use("Agg", force=True)
-    import matplotlib.pyplot as plt
-
-    return plt
+_BH, _DE, _GREY = style.PALETTE[0], style.PALETTE[4], style.PALETTE[3]
 
 
 def _null_formatter():
@@ -29,12 +19,13 @@ def _null_formatter():
     return NullFormatter()
 
 
-def _style(ax):
-    ax.tick_params(direction="in", which="both", top=True, right=True, labelsize=9, colors=_INK)
-    ax.grid(True, which="major", color="#dddddd", linewidth=0.6)
-    for spine in ax.spines.values():
-        spine.set_color(_INK)
-        spine.set_linewidth(0.8)
+def _plain_log_ticks(axis):
+    """Tick labels of a log axis as plain numbers (2, 5, 10) rather than 2×10⁰."""
+    from matplotlib.ticker import FuncFormatter
+
+    plain = FuncFormatter(lambda value, _: f"{value:g}")
+    axis.set_major_formatter(plain)
+    axis.set_minor_formatter(plain)
 
 
 def plot_budget(curve, path, *, title=None):
@@ -47,7 +38,6 @@ def plot_budget(curve, path, *, title=None):
     path : str or Path, PNG file to write
     title : str, optional
     """
-    plt = _pyplot()
     z = np.asarray(curve["z"], dtype=float)
     x = 1.0 + z
     fig, (top, bottom) = plt.subplots(2, 1, sharex=True, figsize=(6.0, 6.4),
@@ -57,40 +47,37 @@ def plot_budget(curve, path, *, title=None):
     hi = np.asarray(curve.get("rho_bh_physical_p84", rho), dtype=float)
     shown = rho > 0
     if np.any(hi > lo):
-        top.fill_between(x[shown], lo[shown], hi[shown], color=_BLUE, alpha=0.25, linewidth=0,
+        top.fill_between(x[shown], lo[shown], hi[shown], color=_BH, alpha=0.25, linewidth=0,
                          label="black holes, 68 % interval")
-    top.plot(x[shown], rho[shown], color=_BLUE, linewidth=2.0, label="coupled black holes")
-    top.plot(x, curve["rho_de_physical"], color=_ORANGE, linewidth=2.0, linestyle="--",
+    top.plot(x[shown], rho[shown], color=_BH, linewidth=2.0, label="coupled black holes")
+    top.plot(x, curve["rho_de_physical"], color=_DE, linewidth=2.0, linestyle="--",
              label="dark energy")
     top.set_xscale("log")
     top.set_yscale("log")
-    top.set_ylabel(r"physical density  [M$_\odot$ Mpc$^{-3}$]", fontsize=10)
-    top.legend(frameon=False, fontsize=9, loc="best")
+    top.set_ylabel(r"physical density (M$_\odot$ Mpc$^{-3}$)")
+    top.legend(fontsize=9, loc="best")
     if title:
-        top.set_title(title, fontsize=10)
+        top.set_title(title)
     w = np.asarray(curve["w_eff"], dtype=float)
     w_lo = np.asarray(curve.get("w_eff_p16", w), dtype=float)
     w_hi = np.asarray(curve.get("w_eff_p84", w), dtype=float)
     finite = np.isfinite(w)
     if np.any(w_hi[finite] > w_lo[finite]):
-        bottom.fill_between(x[finite], w_lo[finite], w_hi[finite], color=_BLUE, alpha=0.25, linewidth=0)
-    bottom.plot(x[finite], w[finite], color=_BLUE, linewidth=2.0)
-    bottom.axhline(-1.0, color=_ORANGE, linestyle="--", linewidth=1.4, label=r"$w = -1$")
+        bottom.fill_between(x[finite], w_lo[finite], w_hi[finite], color=_BH, alpha=0.25, linewidth=0)
+    bottom.plot(x[finite], w[finite], color=_BH, linewidth=2.0)
+    bottom.axhline(-1.0, color=_DE, linestyle="--", linewidth=1.4, label=r"$w = -1$")
     if np.any(finite):
         low = max(np.nanmin(w_lo[finite]), -4.0)
         high = min(np.nanmax(w_hi[finite]), 1.0)
         bottom.set_ylim(min(low, -1.2) - 0.1, max(high, -0.8) + 0.1)
-    bottom.set_xlabel(r"$1 + z$", fontsize=10)
+    bottom.set_xlabel(r"$1 + z$")
     ticks = [t for t in (1, 1.5, 2, 3, 5, 7, 10, 15, 20, 30, 50, 100) if x.min() <= t <= x.max()]
     bottom.set_xticks(ticks)
     bottom.set_xticklabels([f"{t:g}" for t in ticks])
     bottom.xaxis.set_minor_formatter(_null_formatter())
-    bottom.set_ylabel(r"$w_{\rm eff}$", fontsize=10)
-    bottom.legend(frameon=False, fontsize=9, loc="best")
-    for ax in (top, bottom):
-        _style(ax)
-    fig.savefig(path, dpi=150, bbox_inches="tight")
-    plt.close(fig)
+    bottom.set_ylabel(r"$w_{\rm eff}$")
+    bottom.legend(fontsize=9, loc="best")
+    style.save(fig, path)
 
 
 def plot_remnants(catalog, path, *, limit, k=None, k_band=None, k_max=None, k_range=None):
@@ -106,7 +93,6 @@ def plot_remnants(catalog, path, *, limit, k=None, k_band=None, k_max=None, k_ra
     k_max : float, optional, largest k allowed at 95 % (dotted vertical line)
     k_range : (float, float), optional, horizontal extent; default 0 to a little past the others
     """
-    plt = _pyplot()
     marks = [v for v in (k, k_max) if v is not None and np.isfinite(v)]
     if k_band is not None:
         marks.extend(k_band)
@@ -119,22 +105,21 @@ def plot_remnants(catalog, path, *, limit, k=None, k_band=None, k_max=None, k_ra
     if k_band is not None:
         ax.axvspan(k_band[0], k_band[1], color=_GREY, alpha=0.2, linewidth=0, label="k, 68 % interval")
     for i, name in enumerate(catalog.ids):
-        colour = _OBJECT_COLOURS[i % len(_OBJECT_COLOURS)]
+        colour = style.colour(i + 1)
         lower = np.maximum(centre[:, i] - spread[:, i], 1e-3 * centre[:, i])  # log axis: stay positive
         ax.fill_between(grid, lower, centre[:, i] + spread[:, i], color=colour,
                         alpha=0.15, linewidth=0)
         ax.plot(grid, centre[:, i], color=colour, linewidth=1.8, label=str(name))
-    ax.axhline(limit, color=_INK, linewidth=1.6, linestyle="--",
+    ax.axhline(limit, color=style.INK, linewidth=1.6, linestyle="--",
                label=f"limit {limit:g} M$_\\odot$")
     if k is not None:
-        ax.axvline(k, color=_INK, linewidth=1.4, label=f"k = {k:.3g}")
+        ax.axvline(k, color=style.INK, linewidth=1.4, label=f"k = {k:.3g}")
     if k_max is not None and np.isfinite(k_max):
-        ax.axvline(k_max, color=_INK, linewidth=1.6, linestyle=":", label=f"k$_{{max}}$ (95 %) = {k_max:.3g}")
+        ax.axvline(k_max, color=style.INK, linewidth=1.6, linestyle=":", label=f"k$_{{max}}$ (95 %) = {k_max:.3g}")
     ax.set_yscale("log")
+    _plain_log_ticks(ax.yaxis)
     ax.set_xlim(*k_range)
-    ax.set_xlabel("coupling exponent k", fontsize=10)
-    ax.set_ylabel(r"birth mass  [M$_\odot$]", fontsize=10)
-    ax.legend(frameon=False, fontsize=8, loc="best", ncol=2 if len(catalog) > 4 else 1)
-    _style(ax)
-    fig.savefig(path, dpi=150, bbox_inches="tight")
-    plt.close(fig)
+    ax.set_xlabel("coupling exponent k")
+    ax.set_ylabel(r"birth mass (M$_\odot$)")
+    ax.legend(fontsize=8, loc="upper left", bbox_to_anchor=(1.01, 1.0))
+    style.save(fig, path)

@@ -1,8 +1,8 @@
 """The web report's parts for the consequences of a k: the dark-energy budget (budget.json) and the
-stellar-remnant test (remnants.json). Every key is optional."""
+stellar-remnant test (remnants.json). Every key is optional. `budget_context` and
+`remnants_context` give the data of the templates sections/budget.html.j2 and remnants.html.j2."""
 
-from .htmlkit import (Cell, as_float, definition_list, dig, fmt, fmt_p, fmt_sig, join, table,
-                      tag)
+from .formatting import Cell, as_float, dig, fmt, fmt_p, fmt_sig, table
 
 MAX_OBJECT_ROWS = 60
 
@@ -15,7 +15,7 @@ def _summary_interval(block):
             f"{fmt_sig(block.get('p84'))}])")
 
 
-def budget_table(document, number):
+def budget_table(document):
     rows = []
     spec = [("coupling exponent k", "k", "k_summary", ""),
             ("Ω_BH today", "omega_bh", "omega_bh_summary", ""),
@@ -31,12 +31,12 @@ def budget_table(document, number):
         spread = _summary_interval(dig(document, summary_key)) if summary_key else None
         rows.append([label, fmt_sig(value, 4), Cell(spread or "–", "text"), unit])
     if not rows:
-        return tag("p", "budget.json holds none of the expected numbers.", cls="note")
+        return None
     point = dig(document, "point_values_are")
     headers = ["quantity", "value", "over the posterior of k", "unit"]
     if all(row[2].content == "–" for row in rows):  # a single k: no spread to show
         headers, rows = headers[:2] + headers[3:], [row[:2] + row[3:] for row in rows]
-    return table(headers, rows, number=number, numeric=[1], caption="Comoving density today of coupled stellar-remnant black holes "
+    return table(headers, rows, numeric=[1], caption="Comoving density today of coupled stellar-remnant black holes "
                                       "against dark energy" + (f" (values are {point})." if point else "."))
 
 
@@ -51,15 +51,13 @@ def _eps_facts(document):
             ("remnant mass fraction", f"{fmt(eps.get('remnant_fraction'), 2)} ({fmt(eps.get('remnant_fraction_source'))})")]
 
 
-def _assumptions(document, heading):
+def _assumptions(document):
     items = dig(document, "assumptions")
-    if not isinstance(items, list) or not items:
-        return join([])
-    return tag("div", tag("h4", heading) + tag("ul", join(tag("li", str(item)) for item in items)),
-               cls="assumptions")
+    return [str(item) for item in items] if isinstance(items, list) else []
 
 
-def budget_body(document, numbering, folder=None):
+def budget_context(document, folder=None):
+    """Data of the template sections/budget.html.j2: the budget table, its inputs and assumptions."""
     inputs = dig(document, "inputs", default={})
     facts = [("star formation", fmt(dig(inputs, "star_formation", "reference",
                                         default=dig(inputs, "star_formation", "kind")))),
@@ -67,8 +65,7 @@ def budget_body(document, numbering, folder=None):
              ("formation floor z", fmt(dig(inputs, "z_floor"), 1)),
              ("posterior of k from", fmt(dig(inputs, "posterior")))] + _eps_facts(document)
     facts = [(a, b) for a, b in facts if b not in ("–", "– M☉")]
-    return join([budget_table(document, numbering.table), definition_list(facts),
-                 _assumptions(document, "Assumptions of the budget")])
+    return {"table": budget_table(document), "facts": facts, "assumptions": _assumptions(document)}
 
 
 def budget_warnings(document):
@@ -77,14 +74,15 @@ def budget_warnings(document):
 
 def budget_glance(document):
     fraction = as_float(dig(document, "fraction_of_lambda"))
-    text = f"Ω_BH = {fmt_sig(dig(document, 'omega_bh'))} at k = {fmt(dig(document, 'k'), 2)}"
+    which = "the posterior median " if dig(document, "point_values_are") == "posterior medians" else ""
+    text = f"Ω_BH = {fmt_sig(dig(document, 'omega_bh'))} at {which}k = {fmt(dig(document, 'k'), 2)}"
     return text + (f", {fmt_sig(100 * fraction)} % of Ω_Λ" if fraction is not None else "")
 
 
-def remnants_table(document, number):
+def remnants_table(document):
     objects = dig(document, "objects")
     if not isinstance(objects, list) or not objects:
-        return join([])
+        return None
     rows = []
     for entry in objects[:MAX_OBJECT_ROWS]:
         p_above = as_float(dig(entry, "p_above_limit"))
@@ -95,13 +93,14 @@ def remnants_table(document, number):
                      fmt(dig(entry, "k_max_95"), 2)])
     more = len(objects) - MAX_OBJECT_ROWS
     return table(["id", "mass today (M☉)", "z observed", "z formed", "birth mass (M☉)",
-                  "P(birth > limit)", "largest k at 95 %"], rows, number=number,
+                  "P(birth > limit)", "largest k at 95 %"], rows,
                  caption="Birth mass of each black hole under the evaluated k and the probability that it "
                          "exceeds the neutron-star limit" + (f" (first {MAX_OBJECT_ROWS} of "
                                                              f"{len(objects)} shown)." if more > 0 else "."))
 
 
-def remnants_body(document, numbering, folder=None):
+def remnants_context(document, folder=None):
+    """Data of the template sections/remnants.html.j2: facts, the per-object table, assumptions."""
     facts = [("k evaluated", f"{fmt(dig(document, 'k'), 2)} ({fmt(dig(document, 'k_is'))})"),
              ("limit", f"{fmt(dig(document, 'limit_msun'), 2)} M☉"),
              ("limit from", fmt(dig(document, "limit_reference"))),
@@ -110,8 +109,7 @@ def remnants_body(document, numbering, folder=None):
     averaged = dig(document, "posterior", "joint_probability_mean")
     if averaged is not None:
         facts.append(("joint probability averaged over the posterior of k", fmt_p(averaged)))
-    return join([definition_list(facts), remnants_table(document, numbering.table),
-                 _assumptions(document, "Assumptions of the remnant test")])
+    return {"facts": facts, "table": remnants_table(document), "assumptions": _assumptions(document)}
 
 
 def remnants_warnings(document):

@@ -2,10 +2,11 @@
 
 Per estimator and injected k: bias, RMSE, interval width, 68/95 % coverage with binomial errors
 (cells outside the binomial 3σ band are flagged) and the power to exclude k = 0 and k = 3; the
-simulation-based-calibration rank test. Every key is optional.
+simulation-based-calibration rank test. Every key is optional. `campaign_context` gives the data
+of the template sections/campaign.html.j2.
 """
 
-from .htmlkit import Cell, as_float, definition_list, dig, fmt, fmt_p, join, table, tag
+from .formatting import Cell, as_float, dig, fmt, fmt_p, table
 
 # |bias| above this fraction of the typical posterior width is flagged (the campaign issue's
 # acceptance criterion for an unbiased estimator).
@@ -54,7 +55,7 @@ def _coverage_cell(block, level):
     return Cell(text, "bad" if off else None, title)
 
 
-def calibration_table(summary, number):
+def calibration_table(summary):
     rows = []
     for name, block in _blocks(summary):
         if not dig(block, "n"):
@@ -71,20 +72,20 @@ def calibration_table(summary, number):
                      fmt(dig(block, "rmse")), _coverage_cell(block, "68"), _coverage_cell(block, "95"),
                      fmt(dig(block, "power_exclude_k0"), 2), fmt(dig(block, "power_exclude_k3"), 2)])
     if not rows:
-        return tag("p", "This campaign's summary holds no recovery table.", cls="note")
+        return None
     return table(["estimator", "injected k", "mocks", "bias ± error (in units of σ_k)", "RMSE",
                   "68 % coverage", "95 % coverage", "P(exclude k = 0)", "P(exclude k = 3)"], rows,
-                 number=number, numeric=range(1, 9),
+                 numeric=range(1, 9),
                  caption="Recovery of injected k, per estimator. Coverage is the fraction of mocks "
                          "whose interval holds the truth (± binomial error); red cells lie outside "
                          f"the binomial 3σ band or have |bias| > {BIAS_LIMIT_SIGMA} σ_k. Power: fraction "
                          "of 95 % intervals excluding k = 0 or k = 3.")
 
 
-def sbc_table(summary, number):
+def sbc_table(summary):
     sbc = dig(summary, "sbc")
     if not isinstance(sbc, dict) or not sbc:
-        return join([])
+        return None
     rows = []
     for name, block in sbc.items():
         p_value = as_float(dig(block, "p_value"))
@@ -93,7 +94,7 @@ def sbc_table(summary, number):
                      Cell(fmt_p(p_value), "bad" if p_value is not None and p_value < SBC_P_LIMIT else None),
                      fmt(dig(block, "mean_normalised_rank"))])
     return table(["estimator", "mocks", "draws per mock", "χ² / dof", "p (uniform ranks)",
-                  "mean normalised rank"], rows, number=number,
+                  "mean normalised rank"], rows,
                  caption="Simulation-based calibration (Talts et al. 2018): k drawn from the prior; "
                          "the rank of the truth among the posterior draws is uniform for a calibrated "
                          "posterior. A mean normalised rank above 0.5 means estimates run low.")
@@ -113,12 +114,13 @@ def campaign_facts(summary):
              ("failed fits", fmt(dig(summary, "n_errors"))),
              ("objects per mock (median)", fmt(dig(summary, "design", "n_objects"))),
              ("seed", fmt(dig(campaign, "seed")))]
-    return definition_list([(a, b) for a, b in pairs if b != "–"])
+    return [(a, b) for a, b in pairs if b != "–"]
 
 
-def campaign_body(summary, numbering, folder=None):
-    return join([campaign_facts(summary), calibration_table(summary, numbering.table),
-                 sbc_table(summary, numbering.table)])
+def campaign_context(summary, folder=None):
+    """Data of the template sections/campaign.html.j2: facts, recovery and SBC tables."""
+    return {"facts": campaign_facts(summary), "recovery": calibration_table(summary),
+            "sbc": sbc_table(summary)}
 
 
 def campaign_warnings(summary):

@@ -69,7 +69,7 @@ def coverage_figure(summary, path):
                 ax.fill_between(grid, nominal - width * band, nominal + width * band,
                                 color=style.INK, alpha=alpha, lw=0,
                                 label=f"nominal ± {width}σ binomial" if width == 3 else None)
-            ax.axhline(nominal, color=style.INK, lw=1)
+            ax.axhline(nominal, color=style.INK, lw=1, label="nominal level")
         ax.set_title(f"{level} % intervals")
         ax.set_xlabel("injected k")
         ax.set_ylabel("coverage (fraction of mocks)")
@@ -91,11 +91,12 @@ def sbc_figure(summary, path):
         expected = block["expected_per_bin"]
         lo, hi = stats.binom.ppf([0.005, 0.995], block["n"], 1.0 / bins) if block["n"] else (0, 0)
         ax.axhspan(lo, hi, color=style.INK, alpha=0.12, lw=0, label="uniform, 99 % band")
-        ax.axhline(expected, color=style.INK, lw=1)
+        ax.axhline(expected, color=style.INK, lw=1, label="uniform expectation")
         p = block.get("p_value")
         ax.set_title(f"{name}: χ² p = {p:.3g}" if p is not None else name)
         ax.set_xlabel(f"rank of the true k among {block['n_draws']} posterior draws")
         ax.set_ylabel("mocks")
+        style.integer_counts(ax)
         ax.legend(fontsize=8)
     if not blocks:
         axes[0][0].text(0.5, 0.5, "no SBC in this campaign", ha="center", va="center")

@@ -7,6 +7,8 @@ from .style import plt
 
 style.apply()
 
+# scipy.stats.anderson_ksamp interpolates its p-value in a table and caps it to [0.001, 0.25].
+AD_CLIP_NOTE = "p-values capped to [0.001, 0.25]\n(scipy's interpolation table)"
 _TITLES = {"ks": "Kolmogorov–Smirnov", "anderson_darling": "Anderson–Darling",
            "epps_singleton": "Epps–Singleton"}
 
@@ -48,7 +50,10 @@ def crosscheck_figure(crosscheck, k_summary, path):
             ax.text(0.5, 0.5, f"skipped:\n{row['skipped']}", transform=ax.transAxes, ha="center",
                     va="center", fontsize=8, wrap=True)
         elif row.get("best_k") is not None:
-            ax.axvline(row["best_k"], color=style.colour(0), lw=0.8, ls=":")
+            ax.axvline(row["best_k"], color=style.colour(0), lw=0.8, ls=":", label="best k (pooled)")
+        if test == "anderson_darling":
+            ax.text(0.02, 0.02, AD_CLIP_NOTE, transform=ax.transAxes, fontsize=7, va="bottom",
+                    color=style.INK)
         ax.set_yscale("log")
         ax.set_ylim(1e-6, 1.5)
         ax.set_xlabel("coupling exponent k")

@@ -3,13 +3,13 @@
 
 Both files are read by meaning, not by a fixed layout: each test is found under "tests" (a list, or
 a mapping of name to result), its verdict under "passed"/"pass"/"ok", its p-value under
-"p_value"/"p", and so on. Anything absent is simply not shown.
+"p_value"/"p", and so on. Anything absent is simply not shown. `nulltests_context` and
+`challenge_context` give the data of the templates sections/nulltests.html.j2 and challenge.html.j2.
 """
 
 import re
 
-from .htmlkit import (Cell, as_float, definition_list, details, dig, esc, flat_scalars, fmt,
-                      fmt_interval, fmt_p, join, table, tag)
+from .formatting import Cell, as_float, dig, flat_scalars, fmt, fmt_interval, fmt_p, table
 
 _PASS_KEYS = ("passed", "pass", "ok", "passes")
 _P_KEYS = ("p_value", "p", "pvalue", "p_value_permutation")
@@ -79,7 +79,7 @@ def _threshold_text(row):
     return fmt(threshold)
 
 
-def nulltests_table(document, number):
+def nulltests_table(document):
     rows = []
     for name, row in null_test_rows(document):
         passed = test_passed(row)
@@ -91,60 +91,59 @@ def nulltests_table(document, number):
                      fmt_p(_first(row, _P_KEYS)), fmt_interval(interval, 2) if interval else "–",
                      Cell(_threshold_text(row), "text"), Cell(fmt(_first(row, _NOTE_KEYS)), "text")])
     if not rows:
-        return tag("p", "nulltests.json holds no recognisable list of tests.", cls="note")
+        return None
     return table(["test", "result", "statistic", "p-value", "95 % range under the null", "threshold",
-                  "what it says"], rows, number=number, numeric=[2, 3, 4],
+                  "what it says"], rows, numeric=[2, 3, 4],
                  caption="Null tests: each passes or fails at its stated threshold; their null "
                          "hypotheses and statistics are listed below the table.")
 
 
 def nulltests_definitions(document):
+    """[{'title', 'null', 'statistic'}] of the tests that state a null hypothesis or a statistic."""
     items = []
     for name, row in null_test_rows(document):
         null = _first(row, _NULL_KEYS)
         words = _statistic_words(row)
-        if not (null or words):
-            continue
-        text = tag("strong", dig(row, "title", default=name)) + " — "
-        if null:
-            text += tag("em", "Null hypothesis: ") + esc(fmt(null)) + " "
-        if words:
-            text += tag("em", "Statistic: ") + esc(words)
-        items.append(tag("li", text))
-    if not items:
-        return join([])
-    return tag("div", tag("h4", "What each test assumes") + tag("ul", join(items)), cls="assumptions")
+        if null or words:
+            items.append({"title": dig(row, "title", default=name), "null": fmt(null) if null else None,
+                          "statistic": words})
+    return items
+
+
+# How the null tests and the challenge estimate k ("mode" of their results files).
+MODE_WORDS = {"fast": "fast estimate: maximum a posteriori k ± Laplace σ",
+              "mcmc": "posterior median ± standard deviation of MCMC draws"}
+
+
+def estimator_words(document):
+    """Which estimator gave the k a results file quotes, in words (from its "mode")."""
+    mode = dig(document, "mode")
+    return MODE_WORDS.get(mode, f"estimator {mode}" if mode else "estimator not recorded")
 
 
 def nulltests_facts(document):
     observed = dig(document, "observed")
     pairs = []
-    if isinstance(observed, dict):
-        estimate = _first(observed, ("k", "median"))
-        spread = _first(observed, ("k_std", "std"))
-        pairs.append(("k of the data", f"{fmt(estimate)} ± {fmt(spread)}" if spread is not None else fmt(estimate)))
-    elif observed is not None:
-        pairs.append(("k of the data", fmt(observed)))
-    labels = (("mode", "estimator"), ("alpha", "level of each test"), ("repeats", "repeats per test"),
+    if observed is not None:
+        pairs.append((f"k of the data ({estimator_words(document)})", _observed_text(observed)))
+    labels = (("alpha", "level of each test"), ("repeats", "repeats per test"),
               ("seed", "seed"), ("selection_modelled", "selection modelled"))
     pairs += [(label, fmt(dig(document, key))) for key, label in labels if dig(document, key) is not None]
-    return definition_list(pairs) if pairs else join([])
+    return pairs
 
 
-def nulltests_body(document, numbering, folder=None):
-    parts = []
-    plain = _first(document, ("summary", "plain_words", "interpretation", "verdict"))
-    if isinstance(plain, str) and plain:
-        plain = [plain]
-    if isinstance(plain, list):
-        parts += [tag("p", line, cls="lede") for line in plain if isinstance(line, str) and line]
-    parts.append(nulltests_facts(document))
-    parts.append(nulltests_table(document, numbering.table))
-    parts.append(nulltests_definitions(document))
-    text = (folder.texts.get("summary.md") if folder is not None else None)
-    if text:
-        parts.append(details("summary.md as written by the command", tag("pre", text, cls="text")))
-    return join(parts)
+def _lines(value):
+    """Non-empty strings of a text or a list of texts."""
+    value = [value] if isinstance(value, str) else value
+    return [line for line in value if isinstance(line, str) and line] if isinstance(value, list) else []
+
+
+def nulltests_context(document, folder=None):
+    """Data of the template sections/nulltests.html.j2."""
+    return {"lede": _lines(_first(document, ("summary", "plain_words", "interpretation", "verdict"))),
+            "facts": nulltests_facts(document), "table": nulltests_table(document),
+            "definitions": nulltests_definitions(document),
+            "summary_md": folder.texts.get("summary.md") if folder is not None else None}
 
 
 def nulltests_warnings(document):
@@ -164,6 +163,9 @@ def nulltests_glance(document):
     failed = [str(dig(row, "title", default=name)) for (name, row), v in zip(rows, verdicts) if v is False]
     ran = sum(v is not None for v in verdicts)
     text = f"{sum(v is True for v in verdicts)} of {ran} null tests pass"
+    k = dig(document, "observed", "k")
+    if k is not None:
+        text = f"data k = {fmt(k, 2)} ({estimator_words(document)}); " + text
     if ran < len(rows):
         text += f" ({len(rows) - ran} skipped)"
     return text + (f"; failed: {', '.join(failed)}" if failed else "")
@@ -207,15 +209,16 @@ def _observed_text(value):
 def challenge_facts(document):
     observed = dig(document, "observed")
     pairs = [("claimed k", fmt(claimed_k(document), 2))]
-    if isinstance(observed, dict):
-        pairs += [(f"k of the data, {ESTIMATOR_NAMES.get(name, name)} fit", _observed_text(value))
+    words = estimator_words(document)
+    if isinstance(observed, dict) and not {"k", "median"} & set(observed):
+        pairs += [(f"k of the data, {ESTIMATOR_NAMES.get(name, name)} fit ({words})", _observed_text(value))
                   for name, value in observed.items()]
     elif observed is not None:
-        pairs.append(("k of the data", fmt(observed)))
-    labels = (("replicas", "mocks per hypothesis"), ("mode", "estimator"), ("alpha", "level"),
+        pairs.append((f"k of the data ({words})", _observed_text(observed)))
+    labels = (("replicas", "mocks per hypothesis"), ("alpha", "level"),
               ("selection_declared", "selection declared"), ("seed", "seed"))
     pairs += [(label, fmt(dig(document, key))) for key, label in labels if dig(document, key) is not None]
-    return definition_list(pairs)
+    return pairs
 
 
 def _hypothesis_name(label, k):
@@ -226,7 +229,7 @@ def _hypothesis_name(label, k):
     return f"{label}: k = {fmt(k, 2)}"
 
 
-def distributions_table(document, number):
+def distributions_table(document):
     """One row per (hypothesis, estimator): where the data's estimate falls among the mocks."""
     hypotheses = dig(document, "hypotheses")
     if not isinstance(hypotheses, dict):
@@ -246,7 +249,7 @@ def distributions_table(document, number):
     if not rows:
         return None
     return table(["hypothesis", "fit", "median k of mocks", "95 % of mocks", "bias", "p (data)",
-                  "p (empirical)", "failed fits"], rows, number=number, numeric=range(2, 8),
+                  "p (empirical)", "failed fits"], rows, numeric=range(2, 8),
                  caption="The data's estimate among mocks of its own design simulated under each "
                          "hypothesis and fitted like the data. The verdict uses the selection-aware rows; "
                          "the plain rows show the bias of a fit that ignores the selection. p: two-sided "
@@ -264,31 +267,29 @@ def _p_value_rows(document):
     return rows
 
 
-def challenge_body(document, numbering, folder=None):
-    parts = []
-    for _, consistent, text in _verdicts(document):
-        tone = "bad" if consistent is False else ("good" if consistent is True else "info")
-        parts.append(tag("p", text, cls=f"verdict verdict-{tone}"))
+def _p_value_table(document):
+    """Fallback for unknown layouts: every p-value found in the file."""
+    rows = [[Cell(path, "text"), Cell(fmt_p(value), "bad" if as_float(value) < 0.05 else None)]
+            for path, value in _p_value_rows(document)]
+    if not rows:
+        return None
+    return table(["where the observed estimate falls", "p-value"], rows,
+                 caption="p-values of the observed k among mocks simulated under the claimed k and "
+                         "under k = 0.")
+
+
+def challenge_context(document, folder=None):
+    """Data of the template sections/challenge.html.j2: verdicts (text, tone), further summary
+    lines, facts, the table of mock distributions."""
+    verdicts = [{"text": text, "tone": "bad" if consistent is False else ("good" if consistent else "info")}
+                for _, consistent, text in _verdicts(document)]
+    shown = {v["text"] for v in verdicts}
     summary = dig(document, "summary")
-    if isinstance(summary, list):
-        shown = {text for _, _, text in _verdicts(document)}
-        parts += [tag("p", line) for line in summary if isinstance(line, str) and line not in shown]
-    parts.append(challenge_facts(document))
-    distributions = distributions_table(document, numbering.table)
-    if distributions is not None:
-        parts.append(distributions)
-    else:
-        rows = [[Cell(path, "text"), Cell(fmt_p(value), "bad" if as_float(value) < 0.05 else None)]
-                for path, value in _p_value_rows(document)]
-        if rows:
-            parts.append(table(["where the observed estimate falls", "p-value"], rows,
-                               number=numbering.table,
-                               caption="p-values of the observed k among mocks simulated under the "
-                                       "claimed k and under k = 0."))
-    text = folder.texts.get("summary.md") if folder is not None else None
-    if text:
-        parts.append(details("summary.md as written by the command", tag("pre", text, cls="text")))
-    return join(parts)
+    return {"verdicts": verdicts,
+            "lines": [line for line in _lines(summary) if line not in shown] if isinstance(summary, list) else [],
+            "facts": challenge_facts(document),
+            "table": distributions_table(document) or _p_value_table(document),
+            "summary_md": folder.texts.get("summary.md") if folder is not None else None}
 
 
 def challenge_warnings(document):
@@ -308,4 +309,5 @@ def challenge_warnings(document):
 
 def challenge_glance(document):
     verdict = verdict_text(document)
-    return verdict or f"claimed k = {fmt(claimed_k(document), 2)} tested against mocks of the data"
+    text = verdict or f"claimed k = {fmt(claimed_k(document), 2)} tested against mocks of the data"
+    return f"{text} (k of the data by {estimator_words(document)})"

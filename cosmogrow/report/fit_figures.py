@@ -8,12 +8,32 @@ from .style import plt
 style.apply()
 
 
+# parameter -> (mathtext symbol, unit); log-masses and their offsets are in dex (log10 Msun)
+_AXIS_SYMBOLS = {"k": ("$k$", None), "alpha": (r"$\alpha$", r"log$_{10}$ M$_\odot$"), "beta": (r"$\beta$", None),
+                 "gamma": (r"$\gamma$", None), "sigma_int": (r"$\sigma_\mathrm{int}$", "dex"),
+                 "delta": (r"$\delta$", "dex"), "delta_host": (r"$\delta_\mathrm{host}$", "dex"),
+                 "f_out": (r"$f_\mathrm{out}$", None), "sigma_out": (r"$\sigma_\mathrm{out}$", "dex")}
+
+
+def parameter_axis_label(name):
+    r"""Axis label of a model parameter: its symbol, the sample/method tag, its unit.
+
+    ``sigma_int[local]`` gives ``$\sigma_\mathrm{int}$[local] (dex)``; a tag's ``$`` is escaped so that
+    text from the data never turns into mathtext; unknown names are shown as given.
+    """
+    base, _, tag = str(name).partition("[")
+    symbol, unit = _AXIS_SYMBOLS.get(base, (base.replace("$", r"\$"), None))
+    label = symbol + (f"[{tag.rstrip(']')}]".replace("$", r"\$") if tag else "")
+    return f"{label} ({unit})" if unit else label
+
+
 def corner_figure(samples, names, path, truths=None):
-    """Corner plot of the posterior draws (corner.py), k first."""
+    """Corner plot of the posterior draws (corner.py), k first; axes named by symbol and unit."""
     import corner
 
-    labels = [n.replace("sigma_int", "σ_int").replace("delta", "δ") for n in names]
-    fig = corner.corner(samples, labels=labels, truths=truths, quantiles=[0.16, 0.5, 0.84],
+    labels = [parameter_axis_label(n) for n in names]
+    titles = [label.rsplit(" (", 1)[0] for label in labels]  # symbol only above each histogram
+    fig = corner.corner(samples, labels=labels, titles=titles, truths=truths, quantiles=[0.16, 0.5, 0.84],
                         show_titles=True, title_fmt=".3f", color=style.PALETTE[0],
                         truth_color=style.PALETTE[4], hist_kwargs={"linewidth": 1.2})
     style.save(fig, path)
@@ -46,12 +66,14 @@ def relation_figure(catalog, summary, options, path):
     style.save(fig, path)
 
 
-def offsets_figure(catalog, summary, samples_k, options, path, method_offsets=None):
-    """Each object's offset from the reference-epoch relation against redshift, with -k log(1+z)."""
+def offsets_figure(catalog, summary, samples_k, options, path, method_offsets=None, host_offsets=None):
+    """Each object's offset from the reference-epoch relation against redshift, with -k log(1+z);
+    the fitted mass-method and host-type offsets ({label: dex}) are taken out first."""
     params = _median_params(summary)
     beta = params.get("beta", 1.0)
-    method_offsets = method_offsets or {}
-    delta = np.array([method_offsets.get(m, 0.0) for m in catalog.method])
+    method_offsets, host_offsets = method_offsets or {}, host_offsets or {}
+    delta = np.array([method_offsets.get(m, 0.0) + host_offsets.get(h, 0.0)
+                      for m, h in zip(catalog.method, catalog.host_type)])
     offset = (catalog.log_mbh - delta - params["alpha"]
               - beta * (catalog.log_mstar - options.log_mstar_pivot))
     fig, ax = plt.subplots(figsize=(6.2, 4.2))
@@ -68,7 +90,7 @@ def offsets_figure(catalog, summary, samples_k, options, path, method_offsets=No
     lo, mid, hi = np.percentile(curves, [16, 50, 84], axis=0)
     ax.fill_between(z, lo, hi, color=style.INK, alpha=0.15, lw=0, label="posterior 68 %")
     ax.plot(z, mid, color=style.INK, lw=1.8, label=r"$-k\,\log_{10}(1+z)$")
-    ax.axhline(0, color="0.6", lw=0.8, ls=":")
+    ax.axhline(0, color="0.6", lw=0.8, ls=":", label="no offset")
     ax.set_xlabel("redshift z")
     ax.set_ylabel(r"offset from reference relation (dex)")
     ax.set_title("Black-hole mass offsets against redshift (diamonds: sample means)")

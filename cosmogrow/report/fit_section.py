@@ -1,12 +1,15 @@
 """The web report's parts for a fit: the headline card of k, its warnings and its tables.
 
-Reads a fit's summary.json (see `cosmogrow.inference.fit.summarise`) defensively: every block is optional.
+Reads a fit's summary.json (see `cosmogrow.inference.fit.summarise`) defensively: every block is
+optional. `fit_context` gives the data of the template sections/fit.html.j2.
 """
 
 import re
 
-from .htmlkit import (Cell, Markup, as_float, definition_list, dig, esc, fmt, fmt_interval, fmt_p,
-                      join, pill, table, tag)
+from markupsafe import Markup, escape
+
+from .formatting import Cell, as_float, dig, fmt, fmt_interval, fmt_p, table
+from .verdict_section import assumptions_table, information_table, sigma_text, verdict_items, verdict_line
 
 _GREEK = {"alpha": "α", "beta": "β", "gamma": "γ", "delta": "δ", "sigma": "σ", "tau": "τ"}
 _NAME = re.compile(r"^(?P<base>[A-Za-z]+)(?:_(?P<sub>[A-Za-z0-9]+))?(?:\[(?P<tag>.*)\])?$")
@@ -19,26 +22,25 @@ def parameter_label(name):
     """
     match = _NAME.match(str(name))
     if not match:
-        return esc(name)
+        return escape(name)
     base = _GREEK.get(match["base"], match["base"])
-    label = tag("var", base) if len(base) == 1 else esc(base)
+    label = Markup("<var>%s</var>") % base if len(base) == 1 else escape(base)
     if match["sub"]:
-        label += tag("sub", match["sub"])
+        label += Markup("<sub>%s</sub>") % match["sub"]
     if match["tag"] is not None:
-        label += join(["[", match["tag"], "]"])
-    return Markup(label)
+        label += Markup("[%s]") % match["tag"]
+    return label
 
 
-def k_text(k):
-    """'1.19 +0.51 −0.54' style Markup of a k block (median and 68 % interval)."""
+def k_parts(k):
+    """{'median', 'plus', 'minus'} texts of a k block (median and 68 % interval; plus/minus None
+    when the interval is unknown), for the `k_value` macro."""
     median = as_float(dig(k, "median"))
     lo, hi = (as_float(dig(k, "interval68", i)) for i in (0, 1))
-    if median is None:
-        return esc("–")
-    if lo is None or hi is None:
-        return esc(fmt(median, 2))
-    return Markup(f'{esc(fmt(median, 2))}<span class="pm"><sup>{esc(fmt(hi - median, 2, signed=True))}'
-                  f'</sup><sub>{esc(fmt(lo - median, 2, signed=True))}</sub></span>')
+    if median is None or lo is None or hi is None:
+        return {"median": fmt(median, 2), "plus": None, "minus": None}
+    return {"median": fmt(median, 2), "plus": fmt(hi - median, 2, signed=True),
+            "minus": fmt(lo - median, 2, signed=True)}
 
 
 def is_selection_aware(summary):
@@ -60,8 +62,13 @@ def fit_kind_label(summary):
     return "fit"
 
 
+def pill(text, tone, href=None):
+    """A small status label for the `pills` macro; tone is one of good, bad, warn, info, muted."""
+    return {"text": text, "tone": tone, "href": href}
+
+
 def status_pills(summary):
-    """Convergence and selection status as labels."""
+    """Convergence and selection status as labels (list of `pill` dicts)."""
     pills = []
     converged = dig(summary, "convergence", "converged")
     if converged is True:
@@ -78,36 +85,34 @@ def status_pills(summary):
     form = dig(summary, "config", "model", "form")
     if form:
         pills.append(pill(f"{form} form", "muted"))
-    return join(pills, " ")
+    return pills
 
 
 def fit_card(label, summary, anchor, n_warnings=0):
-    """The headline card of one fit: k, intervals, significance, status and its count of warnings."""
+    """The headline card of one fit (data of the `fit_card` block of the page): k, intervals,
+    significance, status and its count of warnings."""
     k = dig(summary, "k", default={})
     tests = dig(summary, "tests", default={})
     facts = [
         ("68 % interval", fmt_interval(dig(k, "interval68"), 2)),
         ("95 % interval", fmt_interval(dig(k, "interval95"), 2)),
         ("P(k ≤ 0 | data)", fmt_p(dig(tests, "p_k_le_0"))),
-        ("against k = 0", _sigma(dig(tests, "sigma_vs_k0"))),
-        ("against k = 3", _sigma(dig(tests, "sigma_vs_k3"))),
-        ("Bayes factor B₀₁", fmt(dig(tests, "bayes_factor_k0"), 3)),
+        ("against k = 0", sigma_text(summary, 0)),
+        ("against k = 3", sigma_text(summary, 3)),
+        ("Bayes factor B₀₁", _bayes_text(tests)),
     ]
-    heading = tag("a", label, href=f"#{anchor}", cls="card-link")
     pills = status_pills(summary)
     if n_warnings:
-        pills += " " + tag("a", f"{n_warnings} warning{'s' if n_warnings != 1 else ''}", href="#warnings",
-                           cls="pill pill-bad")
-    main = (tag("p", fit_kind_label(summary) + " · " + heading, cls="kicker")
-            + tag("p", Markup('<var>k</var> = ') + k_text(k), cls="k-value")
-            + tag("p", pills, cls="pills"))
-    body = tag("div", main, cls="card-main") + definition_list(facts)
-    return tag("article", body, cls="card card-fit")
+        pills.append(pill(f"{n_warnings} warning{'s' if n_warnings != 1 else ''}", "bad", "#warnings"))
+    return {"label": label, "anchor": anchor, "kind": fit_kind_label(summary), "k": k_parts(k),
+            "pills": pills, "facts": facts, "verdict": verdict_line(summary)}
 
 
-def _sigma(value):
-    number = as_float(value)
-    return "–" if number is None else f"{fmt(number, 2)} σ (profile likelihood)"
+def _bayes_text(tests):
+    """B01 with the width of the uniform k prior it is proportional to."""
+    width = as_float(dig(tests, "bayes_factor_prior_width"))
+    value = fmt(dig(tests, "bayes_factor_k0"), 3)
+    return value if width is None else f"{value} (uniform k prior of width W = {fmt(width, 0)}; B₀₁ ∝ W)"
 
 
 def fit_warnings(summary):
@@ -145,11 +150,11 @@ def _selection_text(models):
     return "; ".join(parts)
 
 
-def data_table(summary, number):
+def data_table(summary):
     """Per-sample overview from summary['data'], with each sample's declared selection."""
     data = dig(summary, "data")
     if not isinstance(data, dict) or not data:
-        return Markup("")
+        return None
     selections = dig(summary, "selection", "samples", default={})
     rows = []
     for name, row in data.items():
@@ -160,45 +165,49 @@ def data_table(summary, number):
                      Cell(", ".join(map(str, methods)) if isinstance(methods, list) else fmt(methods), "text"),
                      Cell(_selection_text(dig(selections, name)), "text")])
     return table(["sample", "N", "median z", "z range", "median log M_BH", "median log M_*",
-                  "mass methods", "selection"], rows, number=number, numeric=range(1, 6),
+                  "mass methods", "selection"], rows, numeric=range(1, 6),
                  caption="The data: objects per sample, redshifts, median masses (log₁₀ M☉), "
                          "mass methods and declared selection.")
 
 
-def parameter_table(summary, number):
+def parameter_table(summary):
     params = dig(summary, "parameters")
     if not isinstance(params, dict) or not params:
-        return Markup("")
+        return None
     rows = []
     for name, row in params.items():
         rows.append([parameter_label(name), fmt(dig(row, "median")), fmt_interval(dig(row, "interval68")),
                      fmt_interval(dig(row, "interval95")), fmt(dig(summary, "map", "theta", name)),
                      fmt(dig(summary, "map", "laplace_std", name))])
     return table(["parameter", "median", "68 % interval", "95 % interval", "MAP", "Laplace σ"], rows,
-                 number=number, caption="Posterior of every parameter (central intervals of the MCMC draws).")
+                 caption="Posterior of every parameter (central intervals of the MCMC draws).")
 
 
-def tests_table(summary, number):
+def tests_table(summary):
     tests = dig(summary, "tests")
     if not isinstance(tests, dict):
-        return Markup("")
+        return None
     method = dig(tests, "bayes_factor_method")
-    rows = [["P(k ≤ 0 | data)", fmt_p(tests.get("p_k_le_0")), "posterior fraction of draws with k ≤ 0"],
-            ["k = 0 against the best fit", _sigma(tests.get("sigma_vs_k0")),
-             "Wilks equivalent of the profile-likelihood ratio"],
-            ["k = 3 against the best fit", _sigma(tests.get("sigma_vs_k3")),
-             "Wilks equivalent of the profile-likelihood ratio"],
-            ["Savage–Dickey B₀₁ (k = 0 : free k)", fmt(tests.get("bayes_factor_k0")),
+    rows = [["P(k ≤ 0 | data)", fmt_p(tests.get("p_k_le_0")), "posterior fraction of draws with k ≤ 0"]]
+    for k_ref in (0, 3):
+        rows.append([f"k = {k_ref} against the best fit", sigma_text(summary, k_ref),
+                     "σ-equivalent √Λ of the profile-likelihood ratio (Wilks)"])
+        if tests.get(f"sigma_vs_k{k_ref}_unconstrained") is not None:
+            rows.append([f"k = {k_ref}, the data alone",
+                         f"{fmt(tests[f'sigma_vs_k{k_ref}_unconstrained'], 2)} σ "
+                         f"({tests.get('significance_method_unconstrained', 'offsets unconstrained')})",
+                         "the same ratio with the offsets unconstrained"])
+    rows += [["Savage–Dickey B₀₁ (k = 0 : free k)", _bayes_text(tests),
              f"> 1 favours k = 0; log₁₀ B₀₁ = {fmt(tests.get('log10_bayes_factor_k0'), 2)}"
              + (f"; density from {method}" if method else "")]]
     return table(["test", "value", "meaning"], [[a, b, Cell(c, "text")] for a, b, c in rows],
-                 number=number, numeric=[1], caption="Hypothesis tests on k.")
+                 numeric=[1], caption="Hypothesis tests on k.")
 
 
-def convergence_table(summary, number):
+def convergence_table(summary):
     conv = dig(summary, "convergence")
     if not isinstance(conv, dict):
-        return Markup("")
+        return None
     converged = conv.get("converged")
     state = Cell("yes" if converged else ("NO" if converged is False else "–"),
                  "good" if converged else ("bad" if converged is False else None))
@@ -210,7 +219,7 @@ def convergence_table(summary, number):
             ["acceptance fraction", fmt(conv.get("acceptance"), 2)],
             ["burn-in, thinning (steps)", f"{fmt(conv.get('burn_in'))}, {fmt(conv.get('thin'))}"],
             ["posterior draws kept", fmt(conv.get("n_samples"))]]
-    return table(["chain", "value"], rows, number=number, narrow=True,
+    return table(["chain", "value"], rows, narrow=True,
                  caption="Convergence of the ensemble sampler.")
 
 
@@ -229,52 +238,103 @@ def _crosscheck_rows(compared, tests):
         rng = dig(row, "range")
         rows.append([compared, _TEST_LABELS.get(name, name), fmt(dig(row, "best_k"), 2),
                      fmt_interval(rng, 2) if rng else ("skipped" if skipped else "none"),
-                     fmt_p(dig(row, "p_best")), Cell(skipped or "", "text")])
+                     _p_text(name, dig(row, "p_best")), Cell(skipped or "", "text")])
     return rows
 
 
-def crosscheck_table(summary, number):
+# scipy.stats.anderson_ksamp caps its p-value to this range (interpolation in a table).
+AD_P_RANGE = (0.001, 0.25)
+AD_NOTE = ("Anderson–Darling p-values are capped to [0.001, 0.25] by scipy's interpolation table: "
+           "≥ 0.250 and ≤ 0.001 mark values at the caps.")
+
+
+def _p_text(test, value):
+    """A p-value; an Anderson–Darling value at scipy's caps is shown as a bound."""
+    number = as_float(value)
+    if test == "anderson_darling" and number is not None:
+        if number >= AD_P_RANGE[1]:
+            return f"≥ {AD_P_RANGE[1]:.3f}"
+        if number <= AD_P_RANGE[0]:
+            return f"≤ {AD_P_RANGE[0]:.3f}"
+    return fmt_p(value)
+
+
+def crosscheck_table(summary):
     """The distribution-matching cross-check (best k and range with p ≥ 0.05 per two-sample test)."""
     check = dig(summary, "crosscheck")
     if not isinstance(check, dict):
-        return Markup("")
+        return None
     if dig(check, "skipped"):
-        return tag("p", Markup("<strong>Distribution-matching cross-check skipped:</strong> ")
-                   + esc(dig(check, "skipped")), cls="note")
+        return None
     rows = _crosscheck_rows("high-z samples pooled", dig(check, "tests"))
     per_sample = dig(check, "per_sample")
     if isinstance(per_sample, dict) and len(per_sample) > 1:
         for sample, tests in per_sample.items():
             rows += _crosscheck_rows(f"{sample} alone", tests)
     if not rows:
-        return Markup("")
+        return None
     headers = ["compared with the reference", "two-sample test", "best k", "k range with p ≥ 0.05",
                "p at best k", "note"]
     if not any(row[-1].content for row in rows):
         headers, rows = headers[:-1], [row[:-1] for row in rows]
     reference = dig(check, "reference")
     statistic = dig(check, "statistic")
-    return table(headers, rows, number=number, numeric=[2, 3, 4],
+    clipped = any(row[1] == _TEST_LABELS["anderson_darling"] for row in rows)
+    return table(headers, rows, numeric=[2, 3, 4],
                  caption=f"Assumption-light cross-check: the high-z statistic "
                          f"({statistic or 'log M_BH/M_*'}) shifted by +k log₁₀(1+z) and compared with "
                          f"the reference sample{f' {reference!s}' if reference else ''} by two-sample "
-                         f"tests (no Gaussian scatter assumed; selection and method offsets not modelled).")
+                         f"tests (no Gaussian scatter assumed; selection and method offsets not modelled)."
+                         + (f" {AD_NOTE}" if clipped else ""))
 
 
-def sensitivity_table(summary, number):
+def offset_width_table(summary):
     rows = dig(summary, "degeneracy", "offset_prior_sensitivity")
     if not isinstance(rows, list) or not rows:
-        return Markup("")
+        return None
     body = [[fmt(dig(r, "offset_prior_width"), 2), fmt(dig(r, "k_std"))] for r in rows]
-    return table(["offset prior width (dex)", "σ(k) (Laplace)"], body, number=number, numeric=[1], narrow=True,
+    return table(["offset prior width (dex)", "σ(k) (Laplace)"], body, numeric=[1], narrow=True,
                  caption="How the width of k follows the prior width of the mass-method offsets: a "
                          "width that grows with the prior means the data cannot separate k from the offsets.")
 
 
-def fit_body(summary, numbering, folder=None):
-    """All tables of one fit's section, in reading order (`folder` is unused: figures are added by
-    the page)."""
-    parts = [data_table(summary, numbering.table), parameter_table(summary, numbering.table),
-             tests_table(summary, numbering.table), crosscheck_table(summary, numbering.table)]
-    pair = [convergence_table(summary, numbering.table), sensitivity_table(summary, numbering.table)]
-    return join(parts) + tag("div", join(pair), cls="pair")
+def zero_point_text(summary):
+    """The mass method the offsets are measured from, and whether it was configured or chosen."""
+    configured = dig(summary, "config", "model", "zero_point_method")
+    if isinstance(configured, str) and configured:
+        return f"{configured} (set in the configuration)"
+    data = dig(summary, "data", default={})
+    methods = set()
+    for row in data.values() if isinstance(data, dict) else []:
+        listed = dig(row, "methods")
+        methods.update(map(str, listed) if isinstance(listed, list) else ())
+    params = dig(summary, "parameters", default={})
+    offsets = {name[6:-1] for name in (params if isinstance(params, dict) else {}) if name.startswith("delta[")}
+    left = sorted(methods - offsets)
+    if len(left) == 1:
+        return f"{left[0]} (chosen by cosmogrow; the other methods' offsets δ are fitted against it)"
+    return "–"
+
+
+def model_facts(summary):
+    """(term, text) facts of the fit: how k is quoted, the likelihood, the model's choices."""
+    model = dig(summary, "config", "model", default={})
+    pairs = [("k quoted as", "posterior median and central 68 % / 95 % intervals of the MCMC draws "
+                             "(emcee); MAP and Laplace σ in the parameter table"),
+             ("likelihood", fit_kind_label(summary)),
+             ("zero-point mass method", zero_point_text(summary)),
+             ("relation form", fmt(dig(model, "form"))), ("intrinsic scatter", fmt(dig(model, "scatter"))),
+             ("reference redshift z_ref", fmt(dig(model, "z_ref"), 2)),
+             ("host-mass pivot (log₁₀ M☉)", fmt(dig(model, "log_mstar_pivot"), 2))]
+    return [(term, text) for term, text in pairs if text != "–"]
+
+
+def fit_context(summary, folder=None):
+    """Data of the template sections/fit.html.j2: the fit's facts and tables in reading order
+    (figures are added by the page; `folder` is unused)."""
+    return {"verdicts": verdict_items(summary), "assumptions": assumptions_table(summary),
+            "information": information_table(summary),
+            "facts": model_facts(summary), "tables": [data_table(summary), parameter_table(summary), tests_table(summary)],
+            "crosscheck_skipped": dig(summary, "crosscheck", "skipped"),
+            "crosscheck": crosscheck_table(summary),
+            "pair": [convergence_table(summary), offset_width_table(summary)]}

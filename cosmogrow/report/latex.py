@@ -104,14 +104,22 @@ def posterior_table(summary, *, digits=3, label="tab:cosmogrow-posterior", capti
         lines.append(f"{parameter_symbol(name)} & {format_number(row.get('median'), digits)} & "
                      f"{_interval(row.get('interval68'), digits)} & "
                      f"{_interval(row.get('interval95'), digits)} \\\\")
+    width = tests.get("bayes_factor_prior_width")
     test_rows = [(r"$P(k \le 0 \mid \mathrm{data})$", tests.get("p_k_le_0")),
                  (r"Profile likelihood, $k = 0$ ($\sigma$)", tests.get("sigma_vs_k0")),
                  (r"Profile likelihood, $k = 3$ ($\sigma$)", tests.get("sigma_vs_k3")),
-                 (r"Savage--Dickey $B_{01}$ at $k = 0$", tests.get("bayes_factor_k0"))]
+                 (r"Profile likelihood, $k = 0$, data alone ($\sigma$)", tests.get("sigma_vs_k0_unconstrained")),
+                 (r"Profile likelihood, $k = 3$, data alone ($\sigma$)", tests.get("sigma_vs_k3_unconstrained")),
+                 (r"Savage--Dickey $B_{01}$ at $k = 0$"
+                  + (f" ($k$ prior width $W = {width:g}$)" if isinstance(width, (int, float)) else ""),
+                  tests.get("bayes_factor_k0"))]
     test_rows = [(text, value) for text, value in test_rows if value is not None]
     if test_rows:
         lines += [r"\hline", r"\multicolumn{4}{l}{Tests on $k$} \\"]
         lines += [rf"{text} & {format_number(value, digits, scientific=True)} & & \\"
                   for text, value in test_rows]
+        if tests.get("significance_method"):
+            lines.append(rf"\multicolumn{{4}}{{l}}{{\footnotesize $\sigma$: "
+                         rf"{escape_latex(tests['significance_method'])}}} \\")
     lines += [r"\hline", r"\end{tabular}", r"\end{table}", ""]
     return "\n".join(lines)

@@ -5,7 +5,7 @@ summary for the page. The paper titles, and the journal details of the entries m
 the comments, are recalled rather than read in the papers.
 """
 
-from .htmlkit import Markup
+from markupsafe import Markup
 
 # Trusted text of this module, written with a few HTML tags for the formulae.
 METHOD = tuple(Markup(text) for text in (

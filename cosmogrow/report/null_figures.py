@@ -22,6 +22,8 @@ def _histogram(ax, draws, observed, label, colour):
     if draws.size:
         ax.hist(draws, bins=max(8, min(40, draws.size // 4)), color=colour, alpha=0.55, label=label)
     ax.axvline(observed, color=style.INK, lw=2, label="data")
+    ax.set_ylabel("count")
+    style.integer_counts(ax)
 
 
 def _errorbars(ax, labels, ks, stds, k_full, std_full):
@@ -124,13 +126,15 @@ def challenge_figure(result, path):
             colour = style.colour(0 if label == "claim" else 1)
             ax.hist(draws, bins=max(8, min(40, draws.size // 4)), color=colour, alpha=0.5,
                     label=f"mocks at k = {row['k']:g}")
-            ax.axvline(row["k"], color=colour, lw=1, ls="--")
+            ax.axvline(row["k"], color=colour, lw=1, ls="--", label=f"true k of these mocks = {row['k']:g}")
         ax.axvline(result["observed"][estimator]["k"], color=style.INK, lw=2.2,
                    label=f"data ({estimator.replace('_', '-')})")
         ax.set_xlabel("estimated k")
         ax.set_title(titles[estimator], fontsize=10)
         ax.legend(fontsize=7)
     axes[0].set_ylabel("mocks")
+    for ax in axes:
+        style.integer_counts(ax)
     claim, null = result["verdict"]["claim"], result["verdict"]["null"]
     fig.suptitle(f"Claimed k = {result['claim']:g}: {claim['status']} (p = {claim['p_value']:.2g}); "
                  f"k = 0: {null['status']} (p = {null['p_value']:.2g})", fontsize=11)

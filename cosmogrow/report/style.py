@@ -21,6 +21,13 @@ def apply():
     })
 
 
+def integer_counts(ax, axis="y"):
+    """Ticks at whole numbers only on an axis of counts (mocks, objects)."""
+    from matplotlib.ticker import MaxNLocator
+
+    getattr(ax, f"{axis}axis").set_major_locator(MaxNLocator(integer=True))
+
+
 def colour(i):
     return PALETTE[i % len(PALETTE)]
 

@@ -290,6 +290,30 @@ class SelectionSet:
             keep &= (on == _NONE) | (value - width * noise >= lim)
         return keep
 
+    def single_mass_cut_rows(self, rows):
+        """The rows (of `rows`, catalogue row indices) whose selection is exactly one probit cut
+        on the black-hole mass (intrinsic or observed); host-mass cuts do not count."""
+        rows = np.asarray(rows)
+        on = self._slot_on[:, rows]
+        mass_cuts = np.sum((on == _INTRINSIC) | (on == _OBSERVED), axis=0)
+        return rows[mass_cuts == 1]
+
+    def single_mass_cut(self, rows):
+        """The one black-hole-mass cut of each row of `rows` (see `single_mass_cut_rows`).
+
+        Returns
+        -------
+        on_observed : ndarray of bool, the cut acts on the observed (not the latent) mass
+        threshold : ndarray, m_lim (log10 Msun)
+        width : ndarray, probit width w (dex)
+        """
+        rows = np.asarray(rows)
+        on = self._slot_on[:, rows]
+        slot = np.argmax((on == _INTRINSIC) | (on == _OBSERVED), axis=0)
+        cols = np.arange(len(rows))
+        return (on[slot, cols] == _OBSERVED, self._slot_lim[:, rows][slot, cols],
+                self._slot_width[:, rows][slot, cols])
+
     def describe(self):
         """JSON-friendly description: per sample, its models (`to_dict`, which `build_selection`
         reads back), the mass each acts on, the range of its thresholds (log10 Msun; log_mstar_min

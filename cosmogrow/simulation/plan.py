@@ -8,12 +8,14 @@ run configuration) and `[mass_function]` (double Schechter; default Baldry et al
   k [0], alpha [8.69: log10 M_BH at M* = 1e11 Msun from the Kormendy & Ho 2013 M-M_bulge relation,
   0.49e9 Msun, taking M_bulge = M*], beta [1, the "ratio" form], sigma_int [0.28 dex, the scatter
   of that relation; or a table sample -> dex], gamma [0], s_pivot [11.0], z_ref [0.0],
-  delta [{}: a table method -> offset in dex; unlisted methods 0], f_out [0], sigma_out [1.0 dex].
-  Flat keys "delta[<method>]" and "sigma_int[<sample>]" are accepted too.
+  delta [{}: a table method -> offset in dex; unlisted methods 0], delta_host [{}: a table host
+  type -> shift of the latent black-hole mass in dex; unlisted types 0], f_out [0], sigma_out [1.0 dex].
+  Flat keys "delta[<method>]", "delta_host[<type>]" and "sigma_int[<sample>]" are accepted too.
 [[sample]]: name, n (selected objects wanted), z_range = [lo, hi], method (required);
   log_mbh_err [by method: dynamical 0.1, reverberation 0.2, virial 0.4 dex (common practice);
   required for other methods], log_mstar_err [0.15 dex], log_mstar_min [10.0], log_mstar_max
-  [12.5] (log10 Msun: the host mass range drawn from the mass function), selection [none].
+  [12.5] (log10 Msun: the host mass range drawn from the mass function), host_type
+  ["unspecified"], selection [none].
 """
 
 from dataclasses import dataclass, field
@@ -30,7 +32,7 @@ TRUTH_DEFAULTS = {"k": 0.0, "alpha": 8.69, "beta": 1.0, "sigma_int": 0.28, "gamm
                   "s_pivot": 11.0, "z_ref": 0.0, "f_out": 0.0, "sigma_out": 1.0}
 TOP_KEYS = ("seed", "cosmology", "mass_function", "truth", "sample")
 SAMPLE_KEYS = ("name", "n", "z_range", "method", "log_mbh_err", "log_mstar_err", "log_mstar_min",
-               "log_mstar_max", "selection")
+               "log_mstar_max", "host_type", "selection")
 SAMPLE_DEFAULTS = {"log_mstar_err": 0.15, "log_mstar_min": 10.0, "log_mstar_max": 12.5}
 #: Keys of a truth dictionary returned by the simulator that are not parameters.
 TRUTH_META_KEYS = ("seed", "cosmology", "mass_function", "samples", "cosmogrow_version", "host_priors")
@@ -67,6 +69,7 @@ class Truth:
     delta: dict = field(default_factory=dict)
     f_out: float = 0.0
     sigma_out: float = 1.0
+    delta_host: dict = field(default_factory=dict)
 
     def scatter_of(self, sample):
         """Intrinsic scatter (dex) of a sample."""
@@ -81,10 +84,15 @@ class Truth:
         """Mass-method offset (dex); 0 for a method not listed."""
         return self.delta.get(method, 0.0)
 
+    def host_offset_of(self, host_type):
+        """Host-type shift of the latent black-hole mass (dex); 0 for a type not listed."""
+        return self.delta_host.get(host_type, 0.0)
+
     def to_dict(self):
         """Nested form: delta and (per sample) sigma_int as tables, like the [truth] table."""
         out = {name: getattr(self, name) for name in self.__dataclass_fields__}
         out["delta"] = dict(self.delta)
+        out["delta_host"] = dict(self.delta_host)
         if isinstance(self.sigma_int, dict):
             out["sigma_int"] = dict(self.sigma_int)
         return out
@@ -98,26 +106,29 @@ def parse_truth(table, *, where="truth"):
         table = {}
     if not isinstance(table, dict):
         raise ConfigError(f"{where}: expected a table, got {table!r}")
-    values = {"delta": {}}
+    values = {"delta": {}, "delta_host": {}}
     for key, value in table.items():
         if key in TRUTH_META_KEYS:
             continue
         if key.startswith("delta[") and key.endswith("]"):
             values["delta"][key[6:-1]] = _number(value, f"{where}.{key}")
+        elif key.startswith("delta_host[") and key.endswith("]"):
+            values["delta_host"][key[11:-1]] = _number(value, f"{where}.{key}")
         elif key.startswith("sigma_int[") and key.endswith("]"):
             if not isinstance(values.get("sigma_int"), dict):
                 values["sigma_int"] = {}
             values["sigma_int"][key[10:-1]] = _number(value, f"{where}.{key}", low=0)
-        elif key == "delta":
+        elif key in ("delta", "delta_host"):
             if not isinstance(value, dict):
-                raise ConfigError(f"{where}.delta: expected a table method -> offset (dex), got {value!r}")
-            values["delta"].update({m: _number(v, f"{where}.delta.{m}") for m, v in value.items()})
+                label = "method" if key == "delta" else "host type"
+                raise ConfigError(f"{where}.{key}: expected a table {label} -> offset (dex), got {value!r}")
+            values[key].update({m: _number(v, f"{where}.{key}.{m}") for m, v in value.items()})
         elif key == "sigma_int" and isinstance(value, dict):
             values["sigma_int"] = {s: _number(v, f"{where}.sigma_int.{s}", low=0) for s, v in value.items()}
         elif key in TRUTH_DEFAULTS:
             values[key] = _number(value, f"{where}.{key}", **_TRUTH_BOUNDS.get(key, {}))
         else:
-            valid = ", ".join([*TRUTH_DEFAULTS, "delta"])
+            valid = ", ".join([*TRUTH_DEFAULTS, "delta", "delta_host"])
             raise ConfigError(f"{where}: unknown key {key!r}; expected some of {valid}")
     return Truth(**values)
 
@@ -140,12 +151,14 @@ class SampleSpec:
     log_mstar_min: float
     log_mstar_max: float
     selection: tuple = ()
+    host_type: str = "unspecified"
 
     def to_dict(self):
         return {"name": self.name, "n": self.n, "z_range": [self.z_lo, self.z_hi],
                 "method": self.method, "log_mbh_err": self.log_mbh_err,
                 "log_mstar_err": self.log_mstar_err, "log_mstar_min": self.log_mstar_min,
-                "log_mstar_max": self.log_mstar_max, "selection": [m.to_dict() for m in self.selection]}
+                "log_mstar_max": self.log_mstar_max, "host_type": self.host_type,
+                "selection": [m.to_dict() for m in self.selection]}
 
 
 def parse_sample(table, index):
@@ -188,9 +201,12 @@ def parse_sample(table, index):
     if not limits["log_mstar_max"] > limits["log_mstar_min"]:
         raise ConfigError(f"{label}: key 'log_mstar_max': expected > log_mstar_min "
                           f"({limits['log_mstar_min']}), got {limits['log_mstar_max']}")
+    host_type = table.get("host_type", "unspecified")
+    if not isinstance(host_type, str) or not host_type.strip():
+        raise ConfigError(f"{label}: key 'host_type': expected a non-empty string, got {host_type!r}")
     selection = build_selection(table.get("selection"), where=label)
     return SampleSpec(name=name, n=n, z_lo=z_lo, z_hi=z_hi, method=method, **errors, **limits,
-                      selection=selection)
+                      selection=selection, host_type=host_type)
 
 
 @dataclass(frozen=True)

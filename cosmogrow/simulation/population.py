@@ -4,8 +4,9 @@ Forward model of one object of a sample with mass method j, at a redshift z and 
 stellar mass s at the observed epoch (log10 Msun); x = log10((1+z)/(1+z_ref)):
 - s from the stellar mass function between the sample's log_mstar_min and log_mstar_max
   (massfunction; default Baldry et al. 2012), z uniform in comoving volume over z_range;
-- host at the reference epoch s_ref = s + gamma x; m_ref = alpha + beta (s_ref - s_pivot) + eps,
-  eps ~ N(0, sigma_int²) (with probability f_out an extra N(0, sigma_out²));
+- host at the reference epoch s_ref = s + gamma x; m_ref = alpha + beta (s_ref - s_pivot)
+  + delta_host[type] + eps, eps ~ N(0, sigma_int²) (with probability f_out an extra N(0, sigma_out²));
+  delta_host is the host-type shift (0 for the zero-point type and for "unspecified");
 - true black-hole mass at the observed epoch m = m_ref - k x;
 - catalogue values m_obs = m + delta_j + N(0, log_mbh_err²), s_obs = s + N(0, log_mstar_err²);
 - the sample's selection applied by random draws with the probits the likelihood uses
@@ -25,10 +26,9 @@ from ..background import comoving_volume_element, describe
 from ..data.catalog import Catalog
 from ..errors import ConfigError
 from .massfunction import HostMassSampler, inverse_cdf_table
-from ..model.likelihood import calibrated_hosts
+from ..model.likelihood import calibrated_hosts, lever_arm
+from ..model.mean import latent_mean
 from ..seeding import child_seed, make_rng
-from ..selection.compiled import _INTRINSIC as _INTRINSIC_CODE
-from ..selection.compiled import _OBSERVED as _OBSERVED_CODE
 from ..selection.compiled import SelectionSet
 from .plan import parse_sim_config, parse_truth
 
@@ -162,7 +162,7 @@ def _simulate_sample(spec, config, rng):
         ids=np.array([f"{spec.name}-{i + 1:06d}" for i in range(n)], dtype=object), z=columns["z"],
         log_mbh=columns["log_mbh"], log_mbh_err=np.full(n, spec.log_mbh_err),
         log_mstar=columns["log_mstar"], log_mstar_err=np.full(n, spec.log_mstar_err),
-        sample=_labels(n, spec.name), method=_labels(n, spec.method),
+        sample=_labels(n, spec.name), method=_labels(n, spec.method), host_type=_labels(n, spec.host_type),
         files=(f"simulated sample '{spec.name}'",))
     info = {**spec.to_dict(), "n_candidates": n_tried, "acceptance": n_have / n_tried}
     return catalog, info
@@ -178,21 +178,24 @@ def _draw_candidates(spec, truth, hosts, redshifts, rng, size):
     """One batch of candidates before selection: z, m_true, log_mbh (observed), log_mstar (observed)."""
     s_true = hosts.draw(size, rng)
     z = redshifts.draw(size, rng)
-    m_true = _true_masses(truth, s_true, z, truth.scatter_of(spec.name), rng)
+    m_true = true_masses(truth, s_true, z, truth.scatter_of(spec.name), rng,
+                          truth.host_offset_of(spec.host_type))
     m_obs = m_true + truth.offset_of(spec.method) + spec.log_mbh_err * rng.standard_normal(size)
     s_obs = s_true + spec.log_mstar_err * rng.standard_normal(size)
     return {"z": z, "m_true": m_true, "log_mbh": m_obs, "log_mstar": s_obs}
 
 
-def _true_masses(truth, s_true, z, sigma_int, rng):
-    """True log M_BH at the observed epoch (log10 Msun) for hosts s_true at redshifts z."""
-    x = np.log10((1.0 + z) / (1.0 + truth.z_ref))
+def true_masses(truth, s_true, z, sigma_int, rng, host_offset=0.0):
+    """True log M_BH at the observed epoch (log10 Msun) for hosts s_true at redshifts z, with
+    host-type shifts `host_offset` (dex)."""
+    x = lever_arm(z, truth.z_ref)
     scatter = np.asarray(sigma_int) * rng.standard_normal(len(z))
     if truth.f_out > 0:
         outlier = rng.random(len(z)) < truth.f_out
         scatter = scatter + outlier * truth.sigma_out * rng.standard_normal(len(z))
-    m_ref = truth.alpha + truth.beta * (s_true + truth.gamma * x - truth.s_pivot) + scatter
-    return m_ref - truth.k * x
+    # the host at the reference epoch, s + gamma x, so the coupling term is k itself
+    return latent_mean(truth.alpha, truth.beta, truth.k, s_true + truth.gamma * x - truth.s_pivot, x,
+                       host_offset=host_offset, scatter=scatter)
 
 
 def resample_hosts(catalog, truth, selections_by_sample, cosmo, seed=None, *, host_errors="calibrated"):
@@ -243,26 +246,28 @@ def resample_hosts(catalog, truth, selections_by_sample, cosmo, seed=None, *, ho
                           f"can never be selected (e.g. id '{catalog.ids[bad[0]]}', sample "
                           f"'{catalog.sample[bad[0]]}', log_mstar {catalog.log_mstar[bad[0]]:.3f})")
     host_mean, host_err = _latent_hosts(catalog, host_errors, host_priors)
-    sigma, delta = np.empty(n), np.empty(n)
+    sigma, delta, shift = np.empty(n), np.empty(n), np.empty(n)
     for name in catalog.sample_names:
         sigma[catalog.sample == name] = truth.scatter_of(name)
     for method in catalog.method_names:
         delta[catalog.method == method] = truth.offset_of(method)
+    for host_type in catalog.host_type_names:
+        shift[catalog.host_type == host_type] = truth.host_offset_of(host_type)
     m_obs = np.full(n, np.nan)
     pending = np.arange(n)
     for round_index in range(_MAX_ROUNDS):
         if round_index == _EXACT_AFTER_ROUNDS:
-            exact = _single_cut_rows(selection, pending) if truth.f_out == 0 else pending[:0]
+            exact = selection.single_mass_cut_rows(pending) if truth.f_out == 0 else pending[:0]
             if len(exact):
                 m_obs[exact] = _draw_truncated(truth, catalog, selection, exact, host_mean, host_err,
-                                               sigma, delta, rng)
+                                               sigma, delta, shift, rng)
                 pending = np.setdiff1d(pending, exact, assume_unique=True)
                 if not len(pending):
                     return catalog.replace(log_mbh=m_obs)
         copies = int(min(2**round_index, _MAX_COPIES, max(1, _MAX_BATCH // len(pending))))
         rows = np.repeat(pending, copies)
         s_true = host_mean[rows] + host_err[rows] * rng.standard_normal(len(rows))
-        m_true = _true_masses(truth, s_true, catalog.z[rows], sigma[rows], rng)
+        m_true = true_masses(truth, s_true, catalog.z[rows], sigma[rows], rng, shift[rows])
         m_draw = m_true + delta[rows] + catalog.log_mbh_err[rows] * rng.standard_normal(len(rows))
         keep = selection.draw_selected(m_true, m_draw, rng, rows=rows)
         accepted_rows, first = np.unique(rows[keep], return_index=True)
@@ -282,14 +287,7 @@ HOST_ERROR_MODES = ("calibrated", "first_order", "fixed")
 _EXACT_AFTER_ROUNDS = 4
 
 
-def _single_cut_rows(selection, rows):
-    """The rows (of `rows`) whose selection is exactly one cut on the black-hole mass."""
-    on = selection._slot_on[:, rows]
-    mass_cuts = np.sum((on == _INTRINSIC_CODE) | (on == _OBSERVED_CODE), axis=0)
-    return rows[mass_cuts == 1]
-
-
-def _draw_truncated(truth, catalog, selection, rows, host_mean, host_err, sigma, delta, rng):
+def _draw_truncated(truth, catalog, selection, rows, host_mean, host_err, sigma, delta, shift, rng):
     """Exact draws of m_obs given selection for rows with a single probit cut.
 
     The latent mass is Gaussian, m ~ N(mu, v) with the host uncertainty folded in; a probit cut on
@@ -299,16 +297,13 @@ def _draw_truncated(truth, catalog, selection, rows, host_mean, host_err, sigma,
     """
     from scipy import stats
 
-    x = np.log10((1.0 + catalog.z[rows]) / (1.0 + truth.z_ref))
-    mu = (truth.alpha + truth.beta * (host_mean[rows] + truth.gamma * x - truth.s_pivot) - truth.k * x)
+    x = lever_arm(catalog.z[rows], truth.z_ref)
+    mu = latent_mean(truth.alpha, truth.beta, truth.k, host_mean[rows] + truth.gamma * x - truth.s_pivot,
+                     x, host_offset=shift[rows])
     var = sigma[rows] ** 2 + truth.beta**2 * host_err[rows] ** 2
     err = catalog.log_mbh_err[rows]
-    on = selection._slot_on[:, rows]
-    slot = np.argmax((on == _INTRINSIC_CODE) | (on == _OBSERVED_CODE), axis=0)
-    cols = np.arange(len(rows))
-    observed = on[slot, cols] == _OBSERVED_CODE
-    lim = selection._slot_lim[:, rows][slot, cols]
-    width2 = selection._slot_width[:, rows][slot, cols] ** 2
+    observed, lim, width = selection.single_mass_cut(rows)
+    width2 = width**2
     centre = mu + np.where(observed, delta[rows], 0.0)
     var_y = var + np.where(observed, err**2, 0.0)
     spread_u = np.sqrt(var_y + width2)

@@ -77,12 +77,14 @@ def load_checked_run(args):
 
 
 def write_check_outputs(out, name, result, config, data, text, draw_figure):
-    """NAME.json (result + configuration + inputs), summary.md and NAME.png, written atomically."""
-    from ...outputs import staged_directory, write_json
+    """NAME.json (result + configuration + inputs + package versions), summary.md and NAME.png,
+    written atomically."""
+    from ...outputs import package_versions, staged_directory, write_json
 
     out = Path(out)
     with staged_directory(out) as stage:
-        write_json(stage / f"{name}.json", {**result, "config": config.to_dict(), "inputs": data.files})
+        write_json(stage / f"{name}.json", {**result, "config": config.to_dict(), "inputs": data.files,
+                                            "versions": package_versions()})
         (stage / "summary.md").write_text(text)
         draw_figure(result, stage / f"{name}.png")
     return out

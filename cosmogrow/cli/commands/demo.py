@@ -46,7 +46,8 @@ def stages(data, out, only_fit=False):
         ]
     folders = [argv[argv.index("--out") + 1] for _, argv in plan]
     plan.append(("report", ["report", *folders, "--out", str(out / "report.html"),
-                            "--title", "cosmogrow demo: an invented four-survey programme"]))
+                            "--title", "cosmogrow demo: an invented four-survey programme",
+                            "--truth", str(data / "truth.json")]))
     return plan
 
 

@@ -8,8 +8,10 @@ import numpy as np
 
 from ...config import read_run_config
 from ...inference.fit import load_data, run_fit
+from ...inference.verdicts import verdict_options
 from ...outputs import staged_directory, write_json
 
+# Results written but flagged: the chain did not converge, or k is not identified.
 EXIT_NOT_CONVERGED = 3
 
 
@@ -25,6 +27,12 @@ def register(subparsers):
     parser.add_argument("--plain", action="store_true", help="ignore declared selection (naive likelihood)")
     parser.add_argument("--resume", action="store_true", help="continue the chain in OUT/chain.h5")
     parser.add_argument("--quiet", action="store_true", help="no progress lines")
+    parser.add_argument("--claim", type=float, action="append", metavar="K",
+                        help="also judge this k (repeatable); 0 and 3 are always judged "
+                             "(see docs/method.md#verdicts)")
+    parser.add_argument("--threshold", type=float, metavar="SIGMA",
+                        help="significance at which a k counts as excluded (default: the config's "
+                             "verdicts.threshold, else 3)")
     parser.set_defaults(run=run)
 
 
@@ -51,16 +59,19 @@ def run(args):
     config = read_run_config(args.config).with_overrides(form=args.form, catalogs=args.catalogs)
     config = resolve_seed(config, args.seed)
     data = load_data(config)
+    verdicts = verdict_options(config.raw.get("verdicts", {}), config.source,
+                               claims=args.claim, threshold=args.threshold)
     out = Path(args.out)
     with staged_directory(out) as stage:
         if args.resume and (out / "chain.h5").exists():
             shutil.copy2(out / "chain.h5", stage / "chain.h5")
         result = run_fit(config, data, chain_path=stage / "chain.h5", selection_aware=not args.plain,
-                         on_check=progress_printer(args.quiet))
+                         on_check=progress_printer(args.quiet), verdicts=verdicts)
         write_fit_outputs(stage, config, data, result)
     print((out / "summary.md").read_text())
     print(f"results written to {out}/")
-    return 0 if result.chain.converged else EXIT_NOT_CONVERGED
+    identified = result.summary["identifiability"]["identified"]
+    return 0 if result.chain.converged and identified else EXIT_NOT_CONVERGED
 
 
 def write_fit_outputs(folder, config, data, result):
@@ -81,7 +92,8 @@ def write_fit_outputs(folder, config, data, result):
              k=samples[:, result.model.index_k], log_prob=result.chain.log_prob)
     corner_figure(samples, names, folder / "corner.png")
     relation_figure(data.catalog, summary, config.model, folder / "relation.png")
-    offsets = {name[len("delta["):-1]: row["median"] for name, row in summary["parameters"].items()
-               if name.startswith("delta[")}
-    offsets_figure(data.catalog, summary, samples[:, 0], config.model, folder / "offsets.png", offsets)
+    layout = result.model.layout
+    medians = layout.from_dict({name: row["median"] for name, row in summary["parameters"].items()})
+    offsets_figure(data.catalog, summary, samples[:, layout.index_k], config.model, folder / "offsets.png",
+                   layout.offsets_by_label(medians, "method"), layout.offsets_by_label(medians, "host_type"))
     crosscheck_figure(summary.get("crosscheck"), summary["k"], folder / "crosscheck.png")
