@@ -22,7 +22,7 @@ from ..seeding import child_seed
 from .significance import nuisances_at
 
 #: Default significance level of every null test (a test fails when its p-value is below it).
-#: Six tests at 1 % each give a clean data set a ~6 % chance that one of them fails.
+#: Eight tests at 1 % each give a clean data set a ~8 % chance that one of them fails.
 ALPHA = 0.01
 #: Nominal level of the intervals whose false-positive rate the k = 0 test checks.
 INTERVAL_LEVEL = 0.95
