@@ -56,7 +56,14 @@ def _blocks_words(catalog, blocks):
 
 def redshift_permutation(ctx):
     """Shuffle (z, sample) pairs within blocks of equal method and host type; the data's k/σ_k
-    against the permuted ones."""
+    against the permuted ones.
+
+    Permuting within blocks keeps fixed whatever is confounded with redshift (an offset between a
+    local and a distant method or host type), as restricted permutations do for a nuisance factor
+    (Good 2005, Permutation, Parametric and Bootstrap Tests of Hypotheses, Springer); dividing by
+    each fit's σ_k makes the statistic studentised (Chung & Romano 2013, Ann. Statist. 41, 484).
+    Passed = None when every block sits at one redshift (nothing can move).
+    """
     title = "Redshift permutation"
     null = ("Within each block of equal mass method and host type, redshifts and sample labels carry "
             "no information about the black-hole masses (given host mass): the data's k/σ_k is a "

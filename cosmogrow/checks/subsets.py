@@ -46,17 +46,23 @@ def leave_samples_out(ctx):
                          seed=child_seed(ctx.seed, SUBSETS, i, 1))
         rows.append(pull_row(fit, ctx.observed, samples=list(subset),
                              left_out=[n for n in names if n not in subset]))
+    return _combined_result(
+        ctx, "leave_samples_out", title, null, statistic, rows, "subsets",
+        lambda w, p: (f"across {len(rows)} subsets the largest shift is from leaving out "
+                      f"{', '.join(w['left_out'])} (k = {w['k']:.2f} ± {w['k_std']:.2f} against "
+                      f"{ctx.observed['k']:.2f}, pull {w['pull']:+.2f}; combined p = {p:.3g})."),
+        lambda w: ("k depends on which samples are included: a sample is inconsistent with the rest "
+                   "(a calibration offset, a selection or a host-mass difference specific to it)."))
+
+
+def _combined_result(ctx, name, title, null, statistic, rows, key, describe, failure):
+    """The result of a test of several subsets' pulls (Bonferroni-combined): `describe(worst, p)`
+    words the largest shift, `failure(worst)` what a failure means."""
     p, passed, worst, floor = combined_pulls(rows, ctx.alpha)
-    note = (f"{pass_words(passed)}: across {len(rows)} subsets the largest shift is from leaving out "
-            f"{', '.join(worst['left_out'])} (k = {worst['k']:.2f} ± {worst['k_std']:.2f} against "
-            f"{ctx.observed['k']:.2f}, pull {worst['pull']:+.2f}; combined p = {p:.3g}). ")
-    if not passed:
-        note += ("k depends on which samples are included: a sample is inconsistent with the rest "
-                 "(a calibration offset, a selection or a host-mass difference specific to it).")
-    note += floor
-    return make_result("leave_samples_out", title, null_hypothesis=null, statistic=statistic,
+    note = f"{pass_words(passed)}: {describe(worst, p)} " + ("" if passed else failure(worst)) + floor
+    return make_result(name, title, null_hypothesis=null, statistic=statistic,
                        value=float(abs(worst["pull"])), p_value=p, threshold=threshold_text(ctx.alpha),
-                       passed=passed, note=note, details={"subsets": rows})
+                       passed=passed, note=note, details={key: rows})
 
 
 # ----- host-mass matching ---------------------------------------------------------------------
@@ -165,19 +171,12 @@ def single_method(ctx):
     for i, method in enumerate(spanning):
         fit = ctx.fitter(cat.subset(cat.method == method), seed=child_seed(ctx.seed, METHOD, i, 1))
         rows.append(pull_row(fit, ctx.observed, method=method, n=int(np.sum(cat.method == method))))
-    p, passed, worst, floor = combined_pulls(rows, ctx.alpha)
-    note = (f"{pass_words(passed)}: method '{worst['method']}' alone gives k = {worst['k']:.2f} ± "
-            f"{worst['k_std']:.2f} against {ctx.observed['k']:.2f} (pull {worst['pull']:+.2f}; "
-            f"combined p = {p:.3g}). ")
-    if not passed:
-        note += ("Mass-method offsets are not constant in redshift (e.g. a different calibration in "
-                 "the high-z sample): the full k is driven by comparisons across methods.")
-    note += floor
-    return make_result("single_method", title, null_hypothesis=null, statistic=statistic,
-                       value=float(abs(worst["pull"])), p_value=p, threshold=threshold_text(ctx.alpha),
-                       passed=passed, note=note, details={"methods": rows})
-
-
+    return _combined_result(
+        ctx, "single_method", title, null, statistic, rows, "methods",
+        lambda w, p: (f"method '{w['method']}' alone gives k = {w['k']:.2f} ± {w['k_std']:.2f} "
+                      f"against {ctx.observed['k']:.2f} (pull {w['pull']:+.2f}; combined p = {p:.3g})."),
+        lambda w: ("Mass-method offsets are not constant in redshift (e.g. a different calibration "
+                   "in the high-z sample): the full k is driven by comparisons across methods."))
 
 
 # ----- leave one source out ----------------------------------------------------------------------
@@ -205,16 +204,12 @@ def leave_sources_out(ctx):
     if not rows:
         return skipped_result("leave_sources_out", title, null, statistic,
                               "leaving out any one source leaves too few objects or a single redshift")
-    p, passed, worst, floor = combined_pulls(rows, ctx.alpha)
-    note = (f"{pass_words(passed)}: across {len(rows)} sources the largest shift is from leaving out "
-            f"'{worst['left_out']}' ({worst['n_left_out']} objects; k = {worst['k']:.2f} ± "
-            f"{worst['k_std']:.2f} against {ctx.observed['k']:.2f}, pull {worst['pull']:+.2f}; "
-            f"combined p = {p:.3g}). ")
-    if not passed:
-        note += (f"Source '{worst['left_out']}' is inconsistent with the rest: an offset between "
-                 "compilations (calibration, host-mass scale, selection) that k absorbs. Give the "
-                 "sources their own mass-method labels or fit them separately.")
-    note += floor
-    return make_result("leave_sources_out", title, null_hypothesis=null, statistic=statistic,
-                       value=float(abs(worst["pull"])), p_value=p, threshold=threshold_text(ctx.alpha),
-                       passed=passed, note=note, details={"sources": rows})
+    return _combined_result(
+        ctx, "leave_sources_out", title, null, statistic, rows, "sources",
+        lambda w, p: (f"across {len(rows)} sources the largest shift is from leaving out "
+                      f"'{w['left_out']}' ({w['n_left_out']} objects; k = {w['k']:.2f} ± "
+                      f"{w['k_std']:.2f} against {ctx.observed['k']:.2f}, pull {w['pull']:+.2f}; "
+                      f"combined p = {p:.3g})."),
+        lambda w: (f"Source '{w['left_out']}' is inconsistent with the rest: an offset between "
+                   "compilations (calibration, host-mass scale, selection) that k absorbs. Give the "
+                   "sources their own mass-method labels or fit them separately."))
