@@ -57,6 +57,9 @@ def test_the_selection_aware_fit_is_named_the_answer_whatever_the_order(folders,
     assert esc("for comparison · plain fit (declared selection ignored)") in cards[1]
     rows = headline.split("<tbody>")[1].split("<tr>")[1:]
     assert ">aware<" in rows[0] and "the answer" in rows[0] and ">plain<" in rows[1]
+    page = out.read_text()
+    sections = [page.index(f'<p class="kicker">fit · {name}</p>') for name in ("aware", "plain")]
+    assert sections[0] < sections[1]  # the answer's section comes first too
 
 
 def test_a_plain_fit_without_declared_selection_beats_one_that_ignores_it(folders, tmp_path):

@@ -26,9 +26,15 @@ def answer_rank(summary):
     return 2
 
 
+def order_key(entry):
+    """Sort key of a fit entry: the answer first (by `answer_rank`), then by label, never by the
+    order of the command line."""
+    return answer_rank(entry["document"]), entry["label"], entry["anchor"]
+
+
 def order_fits(fits):
-    """Fit entries, the answer first: by `answer_rank`, then label (command-line order is ignored)."""
-    return sorted(fits, key=lambda e: (answer_rank(e["document"]), e["label"], e["anchor"]))
+    """Fit entries, the answer first (see `order_key`)."""
+    return sorted(fits, key=order_key)
 
 
 def answer_text(fits):

@@ -21,7 +21,7 @@ from ..errors import ConfigError
 from . import fit_section, method_text
 from .folders import collect_folders, read_truth
 from .formatting import Numbering, figure, safely
-from .headline import headline_context
+from .headline import headline_context, order_key
 from .provenance import provenance_context, shown_path
 from .sections import BY_KIND
 from .style import INK, PALETTE
@@ -155,11 +155,15 @@ def _entry(folder, label, kind, index, base):
 
 
 def _entries(folders, base):
+    """The page's results sections: grouped by kind (fits first), the answer fit before the fits
+    shown for comparison; otherwise in the order the folders were given."""
     entries = []
     for folder, label in zip(folders, _labels(folders)):
         for kind in folder.kinds:
             entries.append(_entry(folder, label, kind, len(entries) + 1, base))
-    return entries
+    order = list(BY_KIND)
+    return sorted(entries, key=lambda e: (order.index(e["kind"]),
+                                          order_key(e) if e["kind"] == "fit" else ()))
 
 
 def render_page(folders, *, title=None, generated_at=None, truth=None, base=None):

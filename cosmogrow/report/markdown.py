@@ -16,7 +16,7 @@ def fit_markdown(summary, title="cosmogrow fit"):
     conv = summary["convergence"]
     lines = [f"# {title}", ""] + verdict_lines(summary) + [
              f"**k = {k['median']:.2f} +{k['interval68'][1] - k['median']:.2f} "
-             f"-{k['median'] - k['interval68'][0]:.2f}** (median, 68 %); "
+             f"-{k['median'] - k['interval68'][0]:.2f}** (posterior median of the MCMC draws, 68 %); "
              f"95 %: [{k['interval95'][0]:.2f}, {k['interval95'][1]:.2f}]", "",
              f"Selection modelled: {'yes' if summary['selection']['corrected'] else 'no'}.  "
              f"Converged: {'yes' if conv['converged'] else 'NO'} "

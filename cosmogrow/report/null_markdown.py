@@ -1,5 +1,7 @@
 """summary.md of the null tests and of a challenge of a claimed k, in plain words."""
 
+from .checks_section import estimator_words
+
 
 def _p(value):
     if value is None:
@@ -17,7 +19,7 @@ def nulltests_markdown(result):
     """Markdown text of `nulltests.run_null_tests` results."""
     obs = result["observed"]
     lines = ["# cosmogrow null tests", "",
-             f"Data: k = {obs['k']:.3f} ± {obs['k_std']:.3f} ({result['mode']} estimator, "
+             f"Data: k = {obs['k']:.3f} ± {obs['k_std']:.3f} ({estimator_words(result)}; "
              f"selection {'modelled' if result['selection_modelled'] else 'not declared'}). "
              f"Each test fails when its p-value is below {result['alpha']:g}; "
              f"{result['repeats']} permutations, splits and k = 0 mocks; seed {result['seed']}.", "",
@@ -46,10 +48,11 @@ def challenge_markdown(result):
     lines = [f"# cosmogrow challenge: claimed k = {result['claim']:g}", "",
              f"**Claimed k = {result['claim']:g}: {verdict['claim']['status']}; k = 0: "
              f"{verdict['null']['status']}** (threshold {result['threshold']:g}σ, the fit's).", "",
-             f"{result['replicas']} mocks of the data's own design per hypothesis ({result['mode']} "
-             f"estimator, seed {result['seed']}); a hypothesis is not consistent when the mocks put "
-             f"the data beyond {result['threshold']:g}σ (p < {result['alpha']:.3g}), and its status "
-             "depends on assumptions when the fit's verdict does (docs/method.md#challenge).", "",
+             f"{result['replicas']} mocks of the data's own design per hypothesis (k by "
+             f"{estimator_words(result)}, seed {result['seed']}); a hypothesis is not consistent when "
+             f"the mocks put the data beyond {result['threshold']:g}σ (p < {result['alpha']:.3g}), and "
+             "its status depends on assumptions when the fit's verdict does "
+             "(docs/method.md#challenge).", "",
              "## Verdict", ""]
     lines += [f"- {line}" for line in result["summary"]]
     lines += ["", "## What each hypothesis needs", "",

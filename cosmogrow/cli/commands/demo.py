@@ -64,7 +64,7 @@ def run(args):
         if code == EXIT_BAD_INPUT:
             print(f"[demo] stage '{name}' failed", file=sys.stderr)
             return code
-        note = " (not converged; flagged)" if code == 3 else ""
+        note = " (exit code 3: flagged; see the report's warnings)" if code == 3 else ""
         print(f"[demo] {name} done in {time.perf_counter() - start:.1f} s{note}", file=sys.stderr)
     print(f"report: {(out / 'report.html').resolve()}")
     return 0
