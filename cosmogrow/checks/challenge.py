@@ -52,7 +52,8 @@ def challenge_claim(config, data, claim, *, replicas=DEFAULT_REPLICAS, mode="fas
     Returns
     -------
     dict: claim, threshold, alpha, observed {estimator: fit}, hypotheses {"claim"/"null": {k, truth,
-    nuisance_values, nuisance_prior_sd, nuisance_pulls (offsets in dex, their prior sd, pulls), estimator: {k draws, median, interval95, bias, bias_sigma, p_value}}},
+    nuisance_values, nuisance_prior_sd, nuisance_pulls (offsets in dex, their prior sd, pulls),
+    estimator: {k draws, median, interval95, bias, bias_sigma, p_value}}},
     fit_verdicts {"claim"/"null": the fit's verdict on that k}, verdict {"claim"/"null": {status,
     consistent, p_value, sigma, agrees_with_fit, disagreement, text}}, summary (plain-words lines).
     """

@@ -127,15 +127,21 @@ class NullContext:
         """Truth table of the data's design at coupling `k` (see `truth_at`)."""
         return truth_at(self.config, self.data, k)
 
+    def null_nuisances(self, k=0.0):
+        """Truth table at coupling `k` and its offsets against their priors (see `truth_at`)."""
+        return truth_at(self.config, self.data, k, offsets=True)
 
-def truth_at(config, data, k):
+
+def truth_at(config, data, k, offsets=False):
     """Truth table of the data's design at coupling `k`: the nuisance parameters maximise the
     posterior of the run's model (selection-aware when a selection is declared) with k held fixed.
+    With `offsets`, also the offsets' values, prior widths and pulls (`significance.offset_nuisances`).
 
     Raises ConfigError when k lies outside the prior range of k.
     """
     model = Fitter(config, data).model(data.catalog)
-    return nuisances_at(model, laplace(model).theta, k)[0]
+    truth, table = nuisances_at(model, laplace(model).theta, k)
+    return (truth, table) if offsets else truth
 
 
 def make_context(config, data, *, mode="fast", seed=0, repeats=DEFAULT_REPEATS, alpha=ALPHA,

@@ -313,19 +313,20 @@ def needs_table(document):
         if not isinstance(pulls, dict):
             continue
         values = dig(row, "nuisance_values", default={}) or {}
-        offsets = "; ".join(f"{name} = {fmt(values.get(name), 2, signed=True)} dex ({fmt(pull, 1, signed=True)}σ)"
-                            for name, pull in pulls.items()) or "none"
+        offsets = "; ".join(f"{name} = {fmt(values.get(name), 2, signed=True)} dex "
+                            f"({fmt(pull, 1, signed=True)}σ)" for name, pull in pulls.items()) or "none"
         far = any(abs(as_float(pull) or 0.0) > 2 for pull in pulls.values())
         status = dig(document, "verdict", label, "status")
         fit = dig(document, "fit_verdicts", label) or {}
         low, high = (dig(fit, "sigma_range") or [None, None])[:2]
-        fit_text = (f"{dig(fit, 'verdict')} ({fmt(dig(fit, 'sigma'), 1)}σ; {fmt(low, 1)}–{fmt(high, 1)}σ "
-                    "from ⅓× to 3× the offset widths)") if fit else "–"
+        fit_text = (f"{dig(fit, 'verdict')} ({fmt(dig(fit, 'sigma'), 1)}σ; "
+                    f"{fmt(low, 1)}–{fmt(high, 1)}σ from ⅓× to 3× the offset widths)") if fit else "–"
         bias = as_float(dig(row, "selection_aware", "bias_sigma"))
         rows.append([_hypothesis_name(label, dig(row, "k")),
-                     Cell(status or "–", STATUS_TONES.get(status) if status != "depends on assumptions" else None),
+                     Cell(status or "–", {"consistent": "good", "not consistent": "bad"}.get(status)),
                      Cell(fit_text, "text"), Cell(offsets, "bad" if far else "text"),
-                     Cell(fmt(bias, 2, signed=True), "bad" if bias is not None and abs(bias) > 0.5 else None)])
+                     Cell(fmt(bias, 2, signed=True),
+                          "bad" if bias is not None and abs(bias) > 0.5 else None)])
     if not rows:
         return None
     return table(["hypothesis", "status", "the fit's verdict on this k", "offsets of its mocks (pull)",
