@@ -31,6 +31,7 @@ bench: install
 	$(BIN)/python analysis/bench_fit.py
 	$(BIN)/python analysis/bench_selection.py
 	$(BIN)/python analysis/bench_campaign.py
+	$(BIN)/python analysis/bench_verdicts.py
 
 demo-data: install
 	$(BIN)/python analysis/make_demo_data.py

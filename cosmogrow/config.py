@@ -40,12 +40,14 @@ from .errors import ConfigError
 FORMS = ("ratio", "relation")
 SCATTER_MODES = ("shared", "per_sample")
 HOST_ERROR_MODES = ("calibrated", "first_order")
-_TOP_KEYS = {"seed", "cosmology", "model", "priors", "sampler", "sample", "crosscheck", "out",
-             "verdicts"}
+_TOP_KEYS = {"seed", "cosmology", "model", "priors", "sampler", "sample", "crosscheck", "verdicts"}
 _MODEL_KEYS = {"form", "z_ref", "log_mstar_pivot", "scatter", "zero_point_method",
                "method_offset_width", "host_growth", "outliers", "host_errors",
                "zero_point_host_type", "host_offset_width"}
-_SAMPLER_KEYS = {"walkers", "max_steps", "autocorr_factor", "check_every", "progress"}
+_SAMPLER_KEYS = {"walkers", "max_steps", "autocorr_factor", "check_every"}
+# Keys once accepted without effect: refused with the reason, not silently ignored.
+_NOT_READ = {"out": "the results folder is given on the command line with --out",
+             "sampler.progress": "progress lines are printed unless --quiet is given"}
 _SAMPLE_KEYS = {"name", "path", "columns", "method", "selection", "drop_invalid"}
 
 
@@ -88,7 +90,6 @@ class SamplerOptions:
     max_steps: int = 20000
     autocorr_factor: float = 50.0
     check_every: int = 100
-    progress: bool = False
 
 
 @dataclass(frozen=True)
@@ -230,6 +231,9 @@ def _check_keys(table, allowed, prefix, source):
     if not isinstance(table, dict):
         raise ConfigError(f"{source}: {prefix.rstrip('.')}: expected a table, got {table!r}")
     unknown = sorted(set(table) - set(allowed))
+    for key in unknown:
+        if prefix + key in _NOT_READ:
+            raise ConfigError(f"{source}: key '{prefix}{key}' is not read: {_NOT_READ[prefix + key]}")
     if unknown:
         raise ConfigError(f"{source}: unknown key '{prefix}{unknown[0]}'; expected one of "
                           f"{', '.join(sorted(allowed))}")

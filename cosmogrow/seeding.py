@@ -3,7 +3,7 @@
 import numpy as np
 
 
-def make_rng(seed=None):
+def make_rng(seed=None) -> np.random.Generator:
     """Return a numpy Generator from an int, a SeedSequence, a Generator or None."""
     if isinstance(seed, np.random.Generator):
         return seed
@@ -12,16 +12,7 @@ def make_rng(seed=None):
     return np.random.default_rng(seed)
 
 
-def spawn_seeds(seed, n):
-    """Spawn `n` independent SeedSequences from `seed` (int or SeedSequence).
-
-    The i-th child depends only on (seed, i), so results do not depend on worker count or order.
-    """
-    parent = seed if isinstance(seed, np.random.SeedSequence) else np.random.SeedSequence(seed)
-    return parent.spawn(n)
-
-
-def child_seed(seed, *indices):
+def child_seed(seed, *indices: int) -> np.random.SeedSequence:
     """SeedSequence for job `indices` (e.g. grid point, realisation) of a campaign seeded by `seed`.
 
     Uses `spawn_key`, so child (i, j) is the same whether or not the others are ever created; a
@@ -32,7 +23,7 @@ def child_seed(seed, *indices):
     return np.random.SeedSequence(seed, spawn_key=tuple(int(i) for i in indices))
 
 
-def child_seeds(seed, n):
+def child_seeds(seed, n: int) -> list:
     """Children 0 .. n-1 of `seed` (`child_seed(seed, j)`), e.g. one for the walkers and one for
     the sampler of a fit. They do not depend on, or change, the parent's spawn counter; with
     seed None the n children share one fresh root."""

@@ -329,7 +329,7 @@ def test_simulation_design_campaign(tmp_path):
 def test_design_truth_names_every_parameter():
     from cosmogrow.config import ModelOptions
     from cosmogrow.model.likelihood import CoupledGrowthModel, build_design
-    from cosmogrow.campaigns.mocks import apply_overrides, design_truth
+    from cosmogrow.campaigns.mocks import design_truth
 
     catalog = mock_catalog(np.random.default_rng(1), 1.0,
                            samples=((0.02, 20, "dynamical"), (1.0, 20, "virial")))
@@ -338,14 +338,19 @@ def test_design_truth_names_every_parameter():
     model = CoupledGrowthModel(build_design(catalog, options), options)
     assert model.names == ("k", "alpha", "beta", "sigma_int[S0]", "sigma_int[S1]", "delta[virial]")
     truth = design_truth(model, [9.0, 8.4, 0.9, 0.25, 0.35, 0.2], k=2.0)
-    assert truth == {"k": 2.0, "alpha": 8.4, "beta": 0.9, "sigma_int": {"S0": 0.25, "S1": 0.35},
-                     "delta": {"dynamical": 0.0, "virial": 0.2}, "delta_host": {}, "gamma": 0.5, "s_pivot": 10.5,
-                     "z_ref": 0.1}
-    changed = apply_overrides(truth, {"sigma_int": 0.3, "delta": {"virial": -0.1}})
-    assert changed["sigma_int"] == {"S0": 0.3, "S1": 0.3} and changed["delta"]["virial"] == -0.1
-    assert truth["delta"]["virial"] == 0.2  # the original is not modified
+    assert truth.to_dict() == {"k": 2.0, "alpha": 8.4, "beta": 0.9, "sigma_int": {"S0": 0.25, "S1": 0.35},
+                               "delta": {"dynamical": 0.0, "virial": 0.2}, "delta_host": {},
+                               "gamma": 0.5, "s_pivot": 10.5, "z_ref": 0.1, "f_out": 0.0,
+                               "sigma_out": 1.0}
+    changed = truth.with_overrides({"sigma_int": 0.3, "delta": {"virial": -0.1}})
+    assert changed.sigma_int == {"S0": 0.3, "S1": 0.3} and changed.delta["virial"] == -0.1
+    assert truth.delta["virial"] == 0.2  # the original is not modified
     with pytest.raises(ConfigError, match=r"truth.delta.spectral: unknown name"):
-        apply_overrides(truth, {"delta": {"spectral": 0.1}})
+        truth.with_overrides({"delta": {"spectral": 0.1}})
+    with pytest.raises(ConfigError, match=r"truth.kappa: unknown parameter"):
+        truth.with_overrides({"kappa": 1.0})
+    with pytest.raises(ConfigError, match=r"truth.f_out: expected a finite number >= 0 and <= 0.99"):
+        truth.with_overrides({"f_out": 2.0})
 
 
 # ----- configuration errors -------------------------------------------------------------------

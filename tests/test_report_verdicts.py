@@ -52,3 +52,22 @@ def test_page_shows_verdicts_and_sensitivity_first_in_the_fit_section(tmp_path):
     section = text.index("Verdicts on reference values of k")
     assert section < text.index("Sensitivity to assumptions") < text.index("Hypothesis tests on k")
     assert "only if the offsets are constrained to N(0," in text
+
+
+def test_latex_table_states_the_constraint_and_the_verdicts():
+    from cosmogrow.report.latex import posterior_table
+    tex = posterior_table({**SUMMARY, "parameters": {"k": {"median": -0.7, "interval68": [-1.2, -0.2],
+                                                             "interval95": [-1.7, 0.3]}}})
+    assert r"$\sigma$: profile likelihood, offsets constrained by N(0, 0.3 dex)" in tex
+    assert r"Verdicts: k = 0: depends on assumptions (0.7$\sigma$ to 4.1$\sigma$" in tex
+    assert r"Profile likelihood, $k = 3$, data alone ($\sigma$) & $0.300$" in tex
+    assert "σ" not in tex
+
+
+def test_malformed_verdict_blocks_are_skipped_not_fatal():
+    from cosmogrow.report.verdict_section import verdict_items
+    for bad in (7, "text", {"k_ref": 3}, [1, None]):
+        broken = {**SUMMARY, "verdicts": bad, "sensitivity": bad, "information": bad, "headline": bad}
+        assert verdict_items(broken) == []
+        assert sigma_text(broken, 3).startswith("5.10 σ")
+        assert assumptions_table(broken) is None and information_table(broken) is None

@@ -14,7 +14,7 @@ campaign (selection-aware, and plain when compared) with the same seeds.
 import hashlib
 import json
 import time
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from pathlib import Path
 
 import numpy as np
@@ -28,9 +28,9 @@ from ..inference.laplace import laplace
 from ..inference.fit import build_model, load_data
 from .journal import Journal
 from ..outputs import package_versions, sha256_file
-from .mocks import (apply_overrides, design_truth, draw_replica, draw_simulated, fit_replica,
-                       simulation_design)
-from ..seeding import child_seed
+from ..model.truth import Truth
+from .mocks import design_truth, draw_replica, draw_simulated, fit_replica, simulation_design
+from ..seeding import child_seed, child_seeds
 
 JOURNAL = "journal.jsonl"
 STAMP = "campaign.json"
@@ -53,15 +53,15 @@ class CampaignContext:
     spec : CampaignConfig (with its seed resolved)
     run_config : RunConfig, how every mock is fitted
     data : fit.FitData, the design: catalogue (design mode), selections and cosmology
-    truth : dict, the truth table of the mocks (k replaced per job)
-    sim_config : simulator configuration (simulation mode) or None
+    truth : Truth of the mocks (k replaced per job)
+    sim_config : simulation.population.Simulator (simulation mode) or None
     estimators : tuple of (name, selection_aware)
     """
 
     spec: object
     run_config: RunConfig
     data: object
-    truth: dict
+    truth: Truth
     sim_config: object
     estimators: tuple
     notes: tuple = ()
@@ -84,8 +84,7 @@ def prepare_campaign(spec):
     else:
         run_config = read_run_config(spec.fit) if spec.fit is not None else RunConfig()
         sim_config, data, truth = simulation_design(spec.simulation)
-    truth = apply_overrides(truth, thaw_truth(spec.truth))
-    truth.pop("k", None)
+    truth = truth.with_overrides(thaw_truth(spec.truth))
     selected = any(data.selections.values())
     estimators = ((AWARE, True),) if selected else ((PLAIN, False),)
     notes = []
@@ -94,8 +93,8 @@ def prepare_campaign(spec):
     elif spec.compare_plain:
         notes.append("compare_plain has no effect: the design declares no selection, so the "
                      "plain likelihood is the only estimator")
-    if run_config.model.form == "ratio" and truth.get("beta", 1.0) != 1.0:
-        notes.append(f"the mocks have beta = {truth['beta']:g} but the fit uses the ratio form "
+    if run_config.model.form == "ratio" and truth.beta != 1.0:
+        notes.append(f"the mocks have beta = {truth.beta:g} but the fit uses the ratio form "
                      f"(beta = 1): the estimator is misspecified on purpose or by mistake")
     return CampaignContext(spec=spec, run_config=run_config, data=data, truth=truth,
                            sim_config=sim_config, estimators=estimators, notes=tuple(notes))
@@ -119,8 +118,7 @@ def run_task(context, task):
     spec = context.spec
     kind, g, r = task
     seq = task_seed(spec.seed, task)
-    mock_seed, fit_seed, prior_seed = (np.random.SeedSequence(seq.entropy, spawn_key=seq.spawn_key + (j,))
-                                       for j in range(3))
+    mock_seed, fit_seed, prior_seed = child_seeds(seq, 3)
     sbc = kind == "sbc"
     if sbc:
         k_true = float(np.random.default_rng(prior_seed).uniform(*spec.sbc.prior))
@@ -130,7 +128,7 @@ def run_task(context, task):
             "seed_entropy": str(seq.entropy), "spawn_key": "/".join(map(str, seq.spawn_key))}
     rows = []
     try:
-        truth = {**context.truth, "k": k_true}
+        truth = replace(context.truth, k=k_true)
         if context.sim_config is None:
             catalog = draw_replica(context.run_config, context.data, truth, mock_seed)
         else:
@@ -173,7 +171,7 @@ def fingerprint(context):
              (("design", spec.design), ("simulation", spec.simulation), ("fit", spec.fit)) if path}
     described = {k: v for k, v in spec.to_dict().items() if k not in ("source", "design",
                                                                       "simulation", "fit")}
-    payload = {"campaign": described, "files": files, "truth": context.truth,
+    payload = {"campaign": described, "files": files, "truth": context.truth.to_dict(exclude=("k",)),
                "data": [f["sha256"] for f in getattr(context.data, "files", [])],
                "estimators": context.estimators, "run": context.run_config.to_dict()["model"]}
     text = json.dumps(payload, sort_keys=True, default=str)
@@ -276,7 +274,7 @@ def summarise(context, results):
                                               spec.sbc.prior)
     return {"campaign": spec.to_dict(), "mode": spec.mode,
             "estimators": [name for name, _ in context.estimators], "notes": list(context.notes),
-            "truth": context.truth, "n_mocks": int(len(plan_tasks(spec))),
+            "truth": context.truth.to_dict(exclude=("k",)), "n_mocks": int(len(plan_tasks(spec))),
             "n_rows": int(len(results)),
             "n_errors": int((results["error"] != "").sum()),
             "recovery": recovery, "sbc": sbc or None,

@@ -83,7 +83,7 @@ def challenge_claim(config, data, claim, *, replicas=DEFAULT_REPLICAS, mode="fas
                 unsound[name] += not fit["converged"]
             if on_progress is not None:
                 on_progress(label, r + 1, replicas)
-        hypotheses[label] = {"k": k, "truth": truth, "nuisance_values": offsets["values"],
+        hypotheses[label] = {"k": k, "truth": truth.to_dict(), "nuisance_values": offsets["values"],
                              "nuisance_prior_sd": offsets["prior_sd"],
                              "nuisance_pulls": offsets["pulls"],
                              **{name: {**describe_draws(np.array(values), k, observed[name]["k"]),

@@ -18,6 +18,8 @@ from ..errors import ConfigError
 from ..inference.laplace import laplace
 from ..inference.fit import FitData, build_model
 from ..inference.k_estimate import CAMPAIGN_MAX_STEPS, MODES, estimate_k
+from ..data.catalog import Catalog
+from ..model.truth import Truth
 from ..seeding import child_seed
 from .significance import nuisances_at
 
@@ -73,7 +75,7 @@ class Fitter:
         present = set(catalog.sample_names)
         return {name: spec for name, spec in self.data.selections.items() if spec and name in present}
 
-    def model(self, catalog, selection_catalog=None):
+    def model(self, catalog: Catalog, selection_catalog: Catalog | None = None):
         """The run's posterior for `catalog` (`fit.build_model`); with `selection_catalog` (the same
         rows with their original redshifts and labels) the selection thresholds come from it."""
         config = self._config_for(catalog)
@@ -93,7 +95,7 @@ def _model_with_selection_of(config, data, catalog, source, selection_aware):
     return build_model(config, data, selection_aware=selection_aware, catalog=catalog, selection_source=source)
 
 
-def fit_model(config, model, mode="fast", seed=None):
+def fit_model(config, model, mode: str = "fast", seed=None) -> dict:
     """k of a prebuilt model (`inference.k_estimate.estimate_k`): {"k", "k_std", "converged"}."""
     out = estimate_k(model, mode=mode, sampler=config.sampler, seed=seed, max_steps=CAMPAIGN_MAX_STEPS)
     return {"k": float(out.k), "k_std": float(out.k_std), "converged": bool(out.converged)}
@@ -132,7 +134,7 @@ class NullContext:
         return truth_at(self.config, self.data, k, offsets=True)
 
 
-def truth_at(config, data, k, offsets=False):
+def truth_at(config, data: FitData, k: float, offsets: bool = False) -> Truth | tuple:
     """Truth table of the data's design at coupling `k`: the nuisance parameters maximise the
     posterior of the run's model (selection-aware when a selection is declared) with k held fixed.
     With `offsets`, also the offsets' values, prior widths and pulls (`significance.offset_nuisances`).

@@ -239,7 +239,7 @@ def k0_with_selection(ctx):
                        details={"k_mocks": ks, "k_std_mocks": mocks["k_std"],
                                 "k_observed": ctx.observed["k"], "observed_pull": float(t_obs),
                                 "p_empirical": p_empirical, "observed_percentile": percentile,
-                                "not_converged": mocks["not_converged"], "truth": mocks["truth"]})
+                                "not_converged": mocks["not_converged"], "truth": mocks["truth"].to_dict()})
 
 
 def k0_false_exclusions(ctx):

@@ -64,7 +64,7 @@ def nuisances_at(model, start, k):
 
     Returns
     -------
-    truth : dict (see `campaigns.mocks.design_truth`); offsets : dict (see `offset_nuisances`)
+    truth : Truth (see `campaigns.mocks.design_truth`); offsets : dict (see `offset_nuisances`)
     """
     low, high = model.lower[model.index_k], model.upper[model.index_k]
     if not low < k < high:

@@ -47,8 +47,19 @@ class FitResult:
     summary: dict
 
 
-def load_data(config):
-    """Read every sample's catalogue and its selection; duplicate ids across files are an error."""
+def load_data(config) -> FitData:
+    """Read every sample's catalogue and its selection; duplicate ids across files are an error.
+
+    Parameters
+    ----------
+    config : config.RunConfig
+
+    Raises
+    ------
+    ConfigError, InputError
+        No catalogue, a bad selection or cross-check table, a sample with two different
+        selections, or a bad file (one line naming file, row, column and value).
+    """
     if not config.samples:
         raise ConfigError(f"{config.source}: no catalogues given (list them on the command line "
                           "or as [[sample]] tables)")
@@ -70,7 +81,8 @@ def load_data(config):
     return FitData(catalog=catalog, files=files, selections=selections, cosmology=cosmology)
 
 
-def build_model(config, data, *, selection_aware=True, catalog=None, selection_source=None, host_rounds=2):
+def build_model(config, data: FitData, *, selection_aware: bool = True, catalog: Catalog | None = None,
+                selection_source: Catalog | None = None, host_rounds: int = 2) -> CoupledGrowthModel:
     """The posterior of a run; `catalog` replaces the data's rows (mocks of the same design).
 
     `selection_source` (same rows as `catalog`) is the catalogue the selection is compiled on, for
@@ -86,7 +98,6 @@ def build_model(config, data, *, selection_aware=True, catalog=None, selection_s
     if selection_aware and any(data.selections.values()):
         selection = SelectionSet.compile(data.selections, source, data.cosmology)
     model = CoupledGrowthModel(build_design(catalog, config.model), config.model, config.priors, selection)
-    model.host_priors = {}
     if model.selection is None or config.model.host_errors != "calibrated":
         return model
     cut = [name for name, models in data.selections.items() if any(m.on != "host" for m in models)]
@@ -96,17 +107,23 @@ def build_model(config, data, *, selection_aware=True, catalog=None, selection_s
         theta, _, _ = find_map(model, theta)
         priors = parent_host_priors(model, catalog, theta, selected, config.model.log_mstar_pivot, priors)
         model = CoupledGrowthModel(build_design(catalog, config.model, priors), config.model,
-                                   config.priors, selection)
-        model.host_priors = priors
-        model.map_start = theta
+                                   config.priors, selection, host_priors=priors, map_start=theta)
     return model
 
 
-def run_fit(config, data, *, chain_path=None, on_check=None, selection_aware=True, verdicts=None):
+def run_fit(config, data: FitData, *, chain_path=None, on_check=None, selection_aware: bool = True,
+            verdicts: dict | None = None) -> FitResult:
     """MAP, Laplace, MCMC and the summary of one run.
 
-    `verdicts` ({threshold, k_refs} from `verdicts.verdict_options`) defaults to the
-    configuration's `[verdicts]` table.
+    Parameters
+    ----------
+    config : config.RunConfig (its seed seeds the walkers and the sampler)
+    data : FitData
+    chain_path : path, optional; HDF5 chain, resumed when it exists
+    on_check : callable(step, tau_max, converged), optional progress hook
+    selection_aware : bool, model the declared selection
+    verdicts : dict {threshold, k_refs} from `verdicts.verdict_options`, optional; default the
+        configuration's `[verdicts]` table
 
     Returns
     -------
@@ -120,7 +137,8 @@ def run_fit(config, data, *, chain_path=None, on_check=None, selection_aware=Tru
     return FitResult(model=model, laplace=approx, chain=chain, summary=summary)
 
 
-def summarise(config, data, model, approx, chain, verdicts=None):
+def summarise(config, data: FitData, model: CoupledGrowthModel, approx, chain,
+              verdicts: dict | None = None) -> dict:
     """The summary.json content of a fit."""
     sensitivity = offset_sensitivity(model, approx)
     warnings = degeneracy_warnings(model, data.catalog, approx, sensitivity)
@@ -161,7 +179,7 @@ def summarise(config, data, model, approx, chain, verdicts=None):
                                   for name, models in data.selections.items()},
                       "parent_host_priors": {name: {"mean": mean, "std": float(np.sqrt(var))}
                                              for name, (mean, var) in
-                                             getattr(model, "host_priors", {}).items()}},
+                                             model.host_priors.items()}},
         "crosscheck": crosscheck,
         "warnings": warnings,
         "data": data_overview(data.catalog),
@@ -173,7 +191,8 @@ def summarise(config, data, model, approx, chain, verdicts=None):
     }
 
 
-def assess(config, data, model, approx, chain, verdicts=None):
+def assess(config, data: FitData, model: CoupledGrowthModel, approx, chain,
+           verdicts: dict | None = None) -> dict:
     """Significances, sensitivity rows, verdicts, information shares and identifiability of a fit
     (docs/method.md#verdicts)."""
     options = verdicts or verdict_options(config.raw.get("verdicts", {}), config.source)
@@ -189,7 +208,7 @@ def assess(config, data, model, approx, chain, verdicts=None):
             "warnings": [identifiability_warning(guard), undeclared_methods_warning(data.catalog)]}
 
 
-def data_overview(catalog):
+def data_overview(catalog: Catalog) -> dict:
     """Per-sample counts, redshift and mass ranges, methods."""
     rows = {}
     for name in catalog.sample_names:

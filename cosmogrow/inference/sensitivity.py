@@ -24,8 +24,8 @@ from .verdicts import WIDTH_SCALES, k_key
 
 # Importance draws per reweighted row: DRAW_BUDGET object-evaluations, between MIN and MAX draws.
 # σ(k) shrinks as 1/√N, so fewer draws at large N keep the Monte Carlo error far below 0.05 in k.
-DRAW_BUDGET = 4_000_000
-MIN_DRAWS, MAX_DRAWS = 400, 3000
+DRAW_BUDGET = 1_500_000
+MIN_DRAWS, MAX_DRAWS = 400, 6000
 # Student-t proposal for the importance reweighting: heavier tails than the Laplace Gaussian.
 PROPOSAL_DF = 5
 
@@ -189,15 +189,16 @@ def sensitivity_rows(model, approx, k_draws, k_refs, *, n_draws=None, seed=None)
     scales = WIDTH_SCALES if has_offsets else (1.0,)
     rows, configured = [], None
     for scale in scales:
-        _, sigmas = profile_significances(ConstrainedLikelihood(model, scale), k_refs, approx.theta)
+        best, sigmas = profile_significances(ConstrainedLikelihood(model, scale), k_refs, approx.theta)
         if scale == 1.0:
             configured = sigmas
             k = describe_weighted(k_draws)
             bayes = savage_dickey(k_draws, k_range)["value"]
             method, ess = "MCMC (the fit itself)", float(len(k_draws))
         else:
+            inside = np.clip(best, model.lower, model.upper)  # the k prior range applies here
             draws, weights, ess = reweighted_draws(ConstrainedLikelihood(model, scale, k_range),
-                                                   approx.theta, n_draws, rng)
+                                                   inside, n_draws, rng)
             k = describe_weighted(draws[:, model.index_k], weights)
             bayes = savage_dickey(draws[:, model.index_k], k_range, weights=weights)["value"]
             method = "Laplace + importance reweighting"

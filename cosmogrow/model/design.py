@@ -10,7 +10,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..data.catalog import DEFAULT_HOST_TYPE
+from ..data.catalog import DEFAULT_HOST_TYPE, Catalog
 from ..errors import ConfigError
 
 
@@ -39,12 +39,12 @@ class Design:
                 raise ValueError(f"Design: {name} has {len(getattr(self, name))} rows, expected {n}")
 
 
-def lever_arm(z, z_ref=0.0):
-    """x = log10[(1+z)/(1+z_ref)], the lever arm of coupled growth."""
+def lever_arm(z, z_ref: float = 0.0) -> np.ndarray:
+    """x = log10[(1+z)/(1+z_ref)], the lever arm of coupled growth (z, z_ref: redshifts)."""
     return np.log10((1.0 + np.asarray(z, dtype=float)) / (1.0 + z_ref))
 
 
-def choose_zero_point(catalog):
+def choose_zero_point(catalog: Catalog) -> str:
     """Default zero-point method: the most common method of the lowest-median-redshift sample."""
     medians = {name: np.median(catalog.z[catalog.sample == name]) for name in catalog.sample_names}
     lowest = min(medians, key=medians.get)
@@ -52,7 +52,7 @@ def choose_zero_point(catalog):
     return str(methods[np.argmax(counts)])
 
 
-def choose_zero_point_host_type(catalog):
+def choose_zero_point_host_type(catalog: Catalog) -> str | None:
     """Default zero-point host type: the most common host type of the sample with the lowest
     median redshift among those with a host type; None when no row has one."""
     typed = catalog.host_type != DEFAULT_HOST_TYPE
@@ -66,7 +66,7 @@ def choose_zero_point_host_type(catalog):
     return str(types[np.argmax(counts)])
 
 
-def host_type_groups(catalog, zero_point=None):
+def host_type_groups(catalog: Catalog, zero_point: str | None = None) -> tuple:
     """Host types of the data, the zero point first, and each row's position among them.
 
     Rows of type "unspecified" share position 0 with the zero point: they take no offset.
@@ -92,7 +92,7 @@ def host_type_groups(catalog, zero_point=None):
     return names, np.array([lookup.get(t, 0) for t in catalog.host_type], dtype=np.intp)
 
 
-def calibrated_hosts(catalog, mode="calibrated", host_priors=None):
+def calibrated_hosts(catalog: Catalog, mode: str = "calibrated", host_priors: dict | None = None) -> tuple:
     """Host masses and their errors as the likelihood uses them.
 
     "first_order": the observed log M* with its error (docs/method.md#model, first-order errors in
@@ -129,7 +129,7 @@ def calibrated_hosts(catalog, mode="calibrated", host_priors=None):
     return host, np.sqrt(host_var)
 
 
-def observed_host_moments(s_obs, err2):
+def observed_host_moments(s_obs: np.ndarray, err2: np.ndarray) -> tuple:
     """Mean and deconvolved variance of a sample's true hosts (floored at 10 % of the observed)."""
     variance = np.var(s_obs, ddof=1)
     return float(np.mean(s_obs)), float(max(variance - np.mean(err2), 0.1 * variance, 1e-4))

@@ -49,7 +49,7 @@ def _value_and_gradient(params, *args, step=1e-5):
     return values[0], np.array([values[1] - values[2], values[3] - values[4]]) / (2 * step)
 
 
-def parent_host_priors(model, catalog, theta, samples, pivot, start=None):
+def parent_host_priors(model, catalog, theta: np.ndarray, samples, pivot: float, start: dict | None = None) -> dict:
     """(mean, variance) of the parent true-host distribution of each named sample.
 
     Parameters

@@ -43,9 +43,16 @@ class CoupledGrowthModel:
         Uniform ranges overriding DEFAULT_PRIORS (keys k, alpha, beta, sigma_int, f_out, sigma_out).
     selection : object with ``log_correction(mu_true, delta, var_lat, m_obs, m_err)``, optional
         A compiled selection set; None or one without selection gives the plain likelihood.
+    host_priors : {sample: (mean, variance)}, optional
+        The parent host distributions the design was built with (recorded, not used here).
+    map_start : array, optional
+        A known good starting point for the MAP (e.g. from the parent-host rounds of a fit).
+
+    The model is immutable once built: setting an attribute afterwards raises AttributeError.
     """
 
-    def __init__(self, design, options, priors=None, selection=None):
+    def __init__(self, design: Design, options, priors: dict | None = None, selection=None, *,
+                 host_priors: dict | None = None, map_start=None):
         unknown = set(priors or {}) - set(DEFAULT_PRIORS)
         if unknown:
             raise ConfigError(f"priors: unknown parameter {sorted(unknown)[0]!r}; expected one of "
@@ -60,11 +67,17 @@ class CoupledGrowthModel:
         self._ev_ratio = design.m_err**2 + design.s_err**2
         self._m_err2 = design.m_err**2
         self._s_err2 = design.s_err**2
-        # A known good starting point for the MAP (set by fit.build_model after its host rounds).
-        self.map_start = None
+        self.host_priors = dict(host_priors or {})
+        self.map_start = None if map_start is None else np.array(map_start, dtype=float)
         # Without outliers the Gaussian part always goes through weighted moments; a selection
         # then adds only its correction (`_selection_chunk`).
         self._moments = None if options.outliers else GaussianMoments(self)
+        self._built = True
+
+    def __setattr__(self, name, value):
+        if getattr(self, "_built", False):
+            raise AttributeError(f"CoupledGrowthModel is immutable once built; cannot set {name!r}")
+        super().__setattr__(name, value)
 
     # ----- parameter layout -------------------------------------------------------------
     def _build_layout(self):
@@ -93,13 +106,19 @@ class CoupledGrowthModel:
     def index_k(self) -> int:
         return self.layout.index_k
 
-    def prior_is_proper_in_k(self):
+    def prior_is_proper_in_k(self) -> bool:
+        """Whether the uniform prior on k has finite ends (a Savage-Dickey ratio needs it)."""
         low, high = self.priors["k"]
         return np.isfinite(low) and np.isfinite(high)
 
     # ----- probability ------------------------------------------------------------------
-    def log_prior(self, theta):
-        """Log prior density, shape (n_walkers,); -inf outside the uniform ranges."""
+    def log_prior(self, theta: np.ndarray) -> np.ndarray:
+        """Log prior density, shape (n_walkers,); -inf outside the uniform ranges.
+
+        Parameters
+        ----------
+        theta : ndarray (n_walkers, ndim) or (ndim,), parameter vectors in `layout` order
+        """
         theta = np.atleast_2d(theta)
         inside = np.all((theta > self.lower) & (theta < self.upper), axis=1)
         out = np.where(inside, 0.0, -np.inf)
@@ -111,7 +130,7 @@ class CoupledGrowthModel:
             out = out - 0.5 * np.sum(z**2 + LOG_2PI + 2 * np.log(self.offset_widths), axis=1)
         return out
 
-    def log_likelihood(self, theta):
+    def log_likelihood(self, theta: np.ndarray) -> np.ndarray:
         """Log likelihood of the data, shape (n_walkers,)."""
         theta = np.atleast_2d(theta)
         n_obj = len(self.design.m_obs)
@@ -124,8 +143,13 @@ class CoupledGrowthModel:
             chunk = self._selection_chunk
         return np.concatenate([chunk(theta[i:i + rows]) for i in range(0, len(theta), rows)])
 
-    def log_prob(self, theta):
-        """Log posterior (unnormalised), shape (n_walkers,); vectorised for emcee."""
+    def log_prob(self, theta: np.ndarray) -> np.ndarray:
+        """Log posterior (unnormalised), shape (n_walkers,); vectorised for emcee.
+
+        Parameters
+        ----------
+        theta : ndarray (n_walkers, ndim) or (ndim,), parameter vectors in `layout` order
+        """
         theta = np.atleast_2d(theta)
         out = self.log_prior(theta)
         ok = np.isfinite(out)
@@ -134,7 +158,7 @@ class CoupledGrowthModel:
         out[~np.isfinite(out)] = -np.inf
         return out
 
-    def components(self, theta):
+    def components(self, theta: np.ndarray) -> dict:
         """Per-object pieces of the mean at one parameter vector: a dict with alpha, beta,
         k_eff (k - beta gamma), sigma2 (intrinsic variance per object, dex²), delta (mass-method
         offset per object, dex) and host_offset (host-type offset per object, dex)."""
@@ -150,7 +174,7 @@ class CoupledGrowthModel:
                 "sigma2": sig2[d.scatter_index] if sig2.size > 1 else np.full(len(d.x), sig2[0]),
                 "delta": delta_all[d.method_index], "host_offset": host_all[d.host_index]}
 
-    def per_object_log_likelihood(self, theta):
+    def per_object_log_likelihood(self, theta: np.ndarray) -> np.ndarray:
         """Log likelihood of every object at one parameter vector, shape (N,)."""
         return self._log_likelihood_chunk(np.atleast_2d(theta), reduce=False)[0]
 
@@ -210,7 +234,7 @@ class CoupledGrowthModel:
         return log_like.sum(axis=1) if reduce else log_like
 
     # ----- starting point ---------------------------------------------------------------
-    def initial_guess(self):
+    def initial_guess(self) -> np.ndarray:
         """Weighted least squares for (k, alpha, beta, offsets) and a moment estimate of the scatter."""
         d = self.design
         target = d.m_obs - (0.0 if self.relation else d.s_centred)
@@ -308,7 +332,7 @@ def _column(theta, index):
     return theta[:, index:index + 1]
 
 
-def offset_widths(setting, labels):
+def offset_widths(setting: float | dict, labels) -> np.ndarray:
     """Gaussian prior widths (dex) of the offsets of `labels`: one number for all, or a table
     label -> width with an optional "default" (0.3 dex when absent)."""
     if isinstance(setting, dict):

@@ -23,6 +23,11 @@ def escape_latex(text):
     return _SPECIAL_RE.sub(lambda m: _LATEX_SPECIALS[m.group()], str(text))
 
 
+def _latex_sigma(text):
+    """Escaped text with each σ set as math."""
+    return escape_latex(text).replace("σ", r"$\sigma$")
+
+
 def parameter_symbol(name):
     """LaTeX of a parameter name: ``sigma_int[local]`` → ``$\\sigma_{\\rm int}$[local]``.
 
@@ -118,8 +123,9 @@ def posterior_table(summary, *, digits=3, label="tab:cosmogrow-posterior", capti
         lines += [r"\hline", r"\multicolumn{4}{l}{Tests on $k$} \\"]
         lines += [rf"{text} & {format_number(value, digits, scientific=True)} & & \\"
                   for text, value in test_rows]
-        if tests.get("significance_method"):
-            lines.append(rf"\multicolumn{{4}}{{l}}{{\footnotesize $\sigma$: "
-                         rf"{escape_latex(tests['significance_method'])}}} \\")
+        notes = [f"σ: {tests['significance_method']}" if tests.get("significance_method") else None,
+                 f"Verdicts: {summary['headline']}" if summary.get("headline") else None]
+        lines += [rf"\multicolumn{{4}}{{l}}{{\footnotesize {_latex_sigma(note)}}} \\"
+                  for note in notes if note]
     lines += [r"\hline", r"\end{tabular}", r"\end{table}", ""]
     return "\n".join(lines)

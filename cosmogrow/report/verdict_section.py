@@ -15,9 +15,14 @@ def verdict_line(summary):
     return f"Verdicts: {text}" if isinstance(text, str) and text else None
 
 
+def _verdict_rows(summary):
+    rows = dig(summary, "verdicts")
+    return [row for row in rows if isinstance(row, dict)] if isinstance(rows, list) else []
+
+
 def verdict_for(summary, k_ref):
     """The verdict entry of one reference k, or None."""
-    for row in dig(summary, "verdicts", default=[]) or []:
+    for row in _verdict_rows(summary):
         if as_float(dig(row, "k_ref")) == float(k_ref):
             return row
     return None
@@ -51,7 +56,7 @@ def short_sigma(summary, k_ref):
 def verdict_items(summary):
     """One plain line per reference k: the verdict, its reason, what the data alone say."""
     items = []
-    for row in dig(summary, "verdicts", default=[]) or []:
+    for row in _verdict_rows(summary):
         k_ref = as_float(dig(row, "k_ref"))
         parts = [f"k = {'–' if k_ref is None else f'{k_ref:g}'}: {dig(row, 'verdict', default='–')}.",
                  dig(row, "reason"), dig(row, "data_alone")]
@@ -65,7 +70,8 @@ def verdict_items(summary):
 def assumptions_table(summary):
     """The sensitivity rows: each assumption, k, both significances, B01 with its prior width."""
     rows = dig(summary, "sensitivity")
-    if not isinstance(rows, list) or not rows:
+    rows = [row for row in rows if isinstance(row, dict)] if isinstance(rows, list) else []
+    if not rows:
         return None
     body = []
     for row in rows:

@@ -290,7 +290,7 @@ class SelectionSet:
             keep &= (on == _NONE) | (value - width * noise >= lim)
         return keep
 
-    def single_mass_cut_rows(self, rows):
+    def single_mass_cut_rows(self, rows) -> np.ndarray:
         """The rows (of `rows`, catalogue row indices) whose selection is exactly one probit cut
         on the black-hole mass (intrinsic or observed); host-mass cuts do not count."""
         rows = np.asarray(rows)
@@ -298,7 +298,7 @@ class SelectionSet:
         mass_cuts = np.sum((on == _INTRINSIC) | (on == _OBSERVED), axis=0)
         return rows[mass_cuts == 1]
 
-    def single_mass_cut(self, rows):
+    def single_mass_cut(self, rows) -> tuple:
         """The one black-hole-mass cut of each row of `rows` (see `single_mass_cut_rows`).
 
         Returns

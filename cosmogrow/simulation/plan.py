@@ -18,123 +18,19 @@ run configuration) and `[mass_function]` (double Schechter; default Baldry et al
   ["unspecified"], selection [none].
 """
 
-from dataclasses import dataclass, field
-
-import numpy as np
+from dataclasses import dataclass
 
 from ..background import get_cosmology
 from ..errors import ConfigError
+from ..model.truth import Truth, finite_number as _number, parse_truth
 from .massfunction import mass_function_from_config
 from ..selection.compiled import build_selection
 
 METHOD_ERRORS = {"dynamical": 0.1, "reverberation": 0.2, "virial": 0.4}
-TRUTH_DEFAULTS = {"k": 0.0, "alpha": 8.69, "beta": 1.0, "sigma_int": 0.28, "gamma": 0.0,
-                  "s_pivot": 11.0, "z_ref": 0.0, "f_out": 0.0, "sigma_out": 1.0}
 TOP_KEYS = ("seed", "cosmology", "mass_function", "truth", "sample")
 SAMPLE_KEYS = ("name", "n", "z_range", "method", "log_mbh_err", "log_mstar_err", "log_mstar_min",
                "log_mstar_max", "host_type", "selection")
 SAMPLE_DEFAULTS = {"log_mstar_err": 0.15, "log_mstar_min": 10.0, "log_mstar_max": 12.5}
-#: Keys of a truth dictionary returned by the simulator that are not parameters.
-TRUTH_META_KEYS = ("seed", "cosmology", "mass_function", "samples", "cosmogrow_version", "host_priors")
-
-
-def _number(value, label, *, low=None, high=None, low_open=False):
-    ok = isinstance(value, (int, float)) and not isinstance(value, bool) and np.isfinite(value)
-    if ok and low is not None:
-        ok = value > low if low_open else value >= low
-    if ok and high is not None:
-        ok = value <= high
-    if not ok:
-        bound = []
-        if low is not None:
-            bound.append(f"{'>' if low_open else '>='} {low}")
-        if high is not None:
-            bound.append(f"<= {high}")
-        raise ConfigError(f"{label}: expected a finite number{' ' + ' and '.join(bound) if bound else ''}, "
-                          f"got {value!r}")
-    return float(value)
-
-
-@dataclass(frozen=True)
-class Truth:
-    """True parameters of a simulation (see the module note for meanings and units)."""
-
-    k: float = 0.0
-    alpha: float = 8.69
-    beta: float = 1.0
-    sigma_int: object = 0.28  # float, or dict sample -> float
-    gamma: float = 0.0
-    s_pivot: float = 11.0
-    z_ref: float = 0.0
-    delta: dict = field(default_factory=dict)
-    f_out: float = 0.0
-    sigma_out: float = 1.0
-    delta_host: dict = field(default_factory=dict)
-
-    def scatter_of(self, sample):
-        """Intrinsic scatter (dex) of a sample."""
-        if isinstance(self.sigma_int, dict):
-            if sample not in self.sigma_int:
-                raise ConfigError(f"truth.sigma_int: no value for sample '{sample}'; "
-                                  f"given for {', '.join(self.sigma_int)}")
-            return self.sigma_int[sample]
-        return self.sigma_int
-
-    def offset_of(self, method):
-        """Mass-method offset (dex); 0 for a method not listed."""
-        return self.delta.get(method, 0.0)
-
-    def host_offset_of(self, host_type):
-        """Host-type shift of the latent black-hole mass (dex); 0 for a type not listed."""
-        return self.delta_host.get(host_type, 0.0)
-
-    def to_dict(self):
-        """Nested form: delta and (per sample) sigma_int as tables, like the [truth] table."""
-        out = {name: getattr(self, name) for name in self.__dataclass_fields__}
-        out["delta"] = dict(self.delta)
-        out["delta_host"] = dict(self.delta_host)
-        if isinstance(self.sigma_int, dict):
-            out["sigma_int"] = dict(self.sigma_int)
-        return out
-
-
-def parse_truth(table, *, where="truth"):
-    """A Truth from a [truth] table, a truth dict returned by the simulator or a Truth."""
-    if isinstance(table, Truth):
-        return table
-    if table is None:
-        table = {}
-    if not isinstance(table, dict):
-        raise ConfigError(f"{where}: expected a table, got {table!r}")
-    values = {"delta": {}, "delta_host": {}}
-    for key, value in table.items():
-        if key in TRUTH_META_KEYS:
-            continue
-        if key.startswith("delta[") and key.endswith("]"):
-            values["delta"][key[6:-1]] = _number(value, f"{where}.{key}")
-        elif key.startswith("delta_host[") and key.endswith("]"):
-            values["delta_host"][key[11:-1]] = _number(value, f"{where}.{key}")
-        elif key.startswith("sigma_int[") and key.endswith("]"):
-            if not isinstance(values.get("sigma_int"), dict):
-                values["sigma_int"] = {}
-            values["sigma_int"][key[10:-1]] = _number(value, f"{where}.{key}", low=0)
-        elif key in ("delta", "delta_host"):
-            if not isinstance(value, dict):
-                label = "method" if key == "delta" else "host type"
-                raise ConfigError(f"{where}.{key}: expected a table {label} -> offset (dex), got {value!r}")
-            values[key].update({m: _number(v, f"{where}.{key}.{m}") for m, v in value.items()})
-        elif key == "sigma_int" and isinstance(value, dict):
-            values["sigma_int"] = {s: _number(v, f"{where}.sigma_int.{s}", low=0) for s, v in value.items()}
-        elif key in TRUTH_DEFAULTS:
-            values[key] = _number(value, f"{where}.{key}", **_TRUTH_BOUNDS.get(key, {}))
-        else:
-            valid = ", ".join([*TRUTH_DEFAULTS, "delta", "delta_host"])
-            raise ConfigError(f"{where}: unknown key {key!r}; expected some of {valid}")
-    return Truth(**values)
-
-
-_TRUTH_BOUNDS = {"sigma_int": {"low": 0}, "f_out": {"low": 0, "high": 0.99},
-                 "sigma_out": {"low": 0, "low_open": True}, "z_ref": {"low": 0}}
 
 
 @dataclass(frozen=True)

@@ -17,6 +17,7 @@ Candidates are drawn in batches until each sample holds its requested number of 
 catalogue's design and redraws only its black-hole masses.
 """
 
+from dataclasses import replace
 from typing import NamedTuple
 
 import numpy as np
@@ -30,7 +31,8 @@ from ..model.likelihood import calibrated_hosts, lever_arm
 from ..model.mean import latent_mean
 from ..seeding import child_seed, make_rng
 from ..selection.compiled import SelectionSet
-from .plan import parse_sim_config, parse_truth
+from ..model.truth import Truth, parse_truth
+from .plan import SimConfig, parse_sim_config
 
 _FIRST_BATCH = 4096
 _MAX_BATCH = 2_000_000
@@ -42,7 +44,10 @@ _MAX_COPIES = 4096  # ... each drawing at most this many proposals per pending r
 
 
 class SimulationResult(NamedTuple):
-    """What `simulate_population` returns; unpacks as ``catalog, truth = ...``."""
+    """What `simulate_population` returns; unpacks as ``catalog, truth = ...``.
+
+    ``truth`` is the JSON record written as truth.json: `Truth.to_dict` plus seed, cosmology,
+    mass function and per-sample facts; `parse_truth` reads it back into a `Truth`."""
 
     catalog: Catalog
     truth: dict
@@ -68,21 +73,7 @@ class RedshiftSampler:
         return self._inverse(rng.random(n))
 
 
-_REDSHIFT_SAMPLERS = {}
-
-
-def redshift_sampler(cosmo, z_lo, z_hi):
-    """A cached RedshiftSampler: building one integrates astropy's volume element on 4097 points,
-    most of the cost of a small mock (astropy cosmologies are immutable, so their repr is a key)."""
-    key = (repr(cosmo), float(z_lo), float(z_hi))
-    if key not in _REDSHIFT_SAMPLERS:
-        if len(_REDSHIFT_SAMPLERS) > 64:
-            _REDSHIFT_SAMPLERS.clear()
-        _REDSHIFT_SAMPLERS[key] = RedshiftSampler(cosmo, z_lo, z_hi)
-    return _REDSHIFT_SAMPLERS[key]
-
-
-def simulate_population(sim_config, seed=None):
+def simulate_population(sim_config: dict | SimConfig, seed=None) -> SimulationResult:
     """Simulate every sample of a configuration.
 
     Parameters
@@ -114,29 +105,55 @@ def simulate_population(sim_config, seed=None):
         A bad configuration, or a selection so tight that a sample would need more than
         `MAX_CANDIDATES` candidates.
     """
-    config = parse_sim_config(sim_config)
-    if seed is None:
-        seed = config.seed
-    if seed is None:
-        seed = int(np.random.SeedSequence().entropy)
-    shared = seed if isinstance(seed, np.random.Generator) else None
-    catalogs, infos = [], []
-    for i, spec in enumerate(config.samples):
-        rng = shared if shared is not None else make_rng(child_seed(seed, i))
-        catalog, info = _simulate_sample(spec, config, rng)
-        catalogs.append(catalog)
-        infos.append(info)
-    seed_record = seed.entropy if isinstance(seed, np.random.SeedSequence) else seed
-    seed_record = None if shared is not None else seed_record
-    truth = {**config.truth.to_dict(), "seed": seed_record, "cosmology": describe(config.cosmology),
-             "mass_function": config.mass_function.to_dict(), "samples": infos,
-             "cosmogrow_version": __version__}
-    return SimulationResult(Catalog.concat(catalogs), truth)
+    return Simulator(sim_config).simulate(seed)
 
 
-def _simulate_sample(spec, config, rng):
-    hosts = HostMassSampler(config.mass_function, spec.log_mstar_min, spec.log_mstar_max)
-    redshifts = redshift_sampler(config.cosmology, spec.z_lo, spec.z_hi)
+class Simulator:
+    """A simulator configuration parsed once, with each sample's host-mass and redshift samplers
+    built once: draws many mocks of one design (campaigns) without repeating that work.
+
+    Parameters
+    ----------
+    sim_config : dict (parsed TOML, see `simulate_population`) or plan.SimConfig
+    """
+
+    def __init__(self, sim_config):
+        self.config = sim_config if isinstance(sim_config, SimConfig) else parse_sim_config(sim_config)
+        self._samplers = tuple(
+            (HostMassSampler(self.config.mass_function, spec.log_mstar_min, spec.log_mstar_max),
+             RedshiftSampler(self.config.cosmology, spec.z_lo, spec.z_hi))
+            for spec in self.config.samples)
+
+    @property
+    def truth(self) -> Truth:
+        """The configuration's own truth."""
+        return self.config.truth
+
+    def simulate(self, seed=None, truth: Truth | None = None) -> SimulationResult:
+        """One mock of every sample (seeds and returns: `simulate_population`); `truth` replaces
+        the configuration's."""
+        config = self.config if truth is None else replace(self.config, truth=parse_truth(truth))
+        if seed is None:
+            seed = config.seed
+        if seed is None:
+            seed = int(np.random.SeedSequence().entropy)
+        shared = seed if isinstance(seed, np.random.Generator) else None
+        catalogs, infos = [], []
+        for i, (spec, samplers) in enumerate(zip(config.samples, self._samplers)):
+            rng = shared if shared is not None else make_rng(child_seed(seed, i))
+            catalog, info = _simulate_sample(spec, config, samplers, rng)
+            catalogs.append(catalog)
+            infos.append(info)
+        seed_record = seed.entropy if isinstance(seed, np.random.SeedSequence) else seed
+        seed_record = None if shared is not None else seed_record
+        record = {**config.truth.to_dict(), "seed": seed_record, "cosmology": describe(config.cosmology),
+                  "mass_function": config.mass_function.to_dict(), "samples": infos,
+                  "cosmogrow_version": __version__}
+        return SimulationResult(Catalog.concat(catalogs), record)
+
+
+def _simulate_sample(spec, config, samplers, rng):
+    hosts, redshifts = samplers
     parts, n_have, n_tried = [], 0, 0
     while n_have < spec.n:
         rate = (n_have + 1.0) / (n_tried + 2.0) if n_tried else 1.0
@@ -185,9 +202,19 @@ def _draw_candidates(spec, truth, hosts, redshifts, rng, size):
     return {"z": z, "m_true": m_true, "log_mbh": m_obs, "log_mstar": s_obs}
 
 
-def true_masses(truth, s_true, z, sigma_int, rng, host_offset=0.0):
-    """True log M_BH at the observed epoch (log10 Msun) for hosts s_true at redshifts z, with
-    host-type shifts `host_offset` (dex)."""
+def true_masses(truth: Truth, s_true: np.ndarray, z: np.ndarray, sigma_int, rng: np.random.Generator,
+                host_offset=0.0) -> np.ndarray:
+    """True log M_BH at the observed epoch (log10 Msun): the shared latent mean plus a scatter draw.
+
+    Parameters
+    ----------
+    truth : Truth
+    s_true : ndarray, true host masses at the observed epoch (log10 Msun)
+    z : ndarray, redshifts
+    sigma_int : float or ndarray, intrinsic scatter (dex)
+    rng : numpy Generator
+    host_offset : float or ndarray, host-type shifts (dex)
+    """
     x = lever_arm(z, truth.z_ref)
     scatter = np.asarray(sigma_int) * rng.standard_normal(len(z))
     if truth.f_out > 0:
@@ -198,13 +225,14 @@ def true_masses(truth, s_true, z, sigma_int, rng, host_offset=0.0):
                        host_offset=host_offset, scatter=scatter)
 
 
-def resample_hosts(catalog, truth, selections_by_sample, cosmo, seed=None, *, host_errors="calibrated"):
+def resample_hosts(catalog: Catalog, truth, selections_by_sample: dict, cosmo, seed=None, *,
+                   host_errors: str = "calibrated") -> Catalog:
     """Redraw only the black-hole masses of a catalogue, keeping its design.
 
     Every row keeps its id, z, log_mstar (as observed), errors, sample and method; only log_mbh
     changes. The true host mass behind each row is drawn from the distribution the fit's
     likelihood assumes for it given the observed one (`host_errors`, as the run configuration's
-    model.host_errors; a truth table's "host_priors" gives the parent host distribution of selected
+    model.host_errors; the truth's host_priors give the parent host distribution of selected
     samples), so a resampled catalogue is an exact draw from the fitted model:
     - "calibrated" (the fit's default): regression calibration, s ~ N(calibrated mean,
       calibrated error²) from `cosmogrow.model.likelihood.calibrated_hosts`;
@@ -219,7 +247,7 @@ def resample_hosts(catalog, truth, selections_by_sample, cosmo, seed=None, *, ho
     Parameters
     ----------
     catalog : Catalog
-    truth : dict or Truth, a [truth] table or a truth dict returned by `simulate_population`
+    truth : Truth, or a [truth] table or truth record returned by `simulate_population`
     selections_by_sample : dict, sample name -> selection (tables or models); may be empty
     cosmo : astropy cosmology
     seed : int, SeedSequence or Generator, optional
@@ -235,7 +263,6 @@ def resample_hosts(catalog, truth, selections_by_sample, cosmo, seed=None, *, ho
         An unknown `host_errors`, or rows that the selection essentially never accepts (e.g.
         failing a hard host-mass cut).
     """
-    host_priors = truth.get("host_priors") if isinstance(truth, dict) else None
     truth = parse_truth(truth)
     rng = make_rng(seed)
     selection = SelectionSet.compile(selections_by_sample or {}, catalog, cosmo)
@@ -245,7 +272,7 @@ def resample_hosts(catalog, truth, selections_by_sample, cosmo, seed=None, *, ho
         raise ConfigError(f"resample_hosts: {len(bad)} row(s) fail a host_mass_cut of their sample and "
                           f"can never be selected (e.g. id '{catalog.ids[bad[0]]}', sample "
                           f"'{catalog.sample[bad[0]]}', log_mstar {catalog.log_mstar[bad[0]]:.3f})")
-    host_mean, host_err = _latent_hosts(catalog, host_errors, host_priors)
+    host_mean, host_err = _latent_hosts(catalog, host_errors, truth.host_priors)
     sigma, delta, shift = np.empty(n), np.empty(n), np.empty(n)
     for name in catalog.sample_names:
         sigma[catalog.sample == name] = truth.scatter_of(name)
