@@ -15,6 +15,9 @@ import pytest
 
 from cosmogrow import background
 from cosmogrow.checks import null_tests as nullcases
+from cosmogrow.checks.context import binomial_two_sided_p
+from cosmogrow.checks.null_suite import suite_summary
+from cosmogrow.checks.wording import combined_pulls, pull_row
 from cosmogrow.data.catalog import Catalog
 from cosmogrow.cli.dispatch import main
 from cosmogrow.config import ModelOptions, RunConfig
@@ -79,6 +82,30 @@ def test_statistics_helpers():
     assert abs(np.mean(np.array(ps) < 0.1) - 0.1) < 3 * np.sqrt(0.09 / 5000)
 
 
+def test_binomial_check_is_two_sided():
+    # 0 of 100 false exclusions at a nominal 5 %: P(X = 0) = 0.95^100 = 0.0059, the mid-p value
+    assert binomial_two_sided_p(0, 100, 0.05) == pytest.approx(0.95**100)
+    assert binomial_two_sided_p(0, 100, 0.05) < 0.01          # flagged at the default level
+    assert binomial_two_sided_p(15, 100, 0.05) < 0.01         # too many is flagged as before
+    assert binomial_two_sided_p(5, 100, 0.05) > 0.5
+    # its false-alarm rate under the null stays near the level (binomial 3σ over 20000 draws)
+    counts = np.random.default_rng(3).binomial(100, 0.05, 20000)
+    table = np.array([binomial_two_sided_p(x, 100, 0.05) for x in range(101)])
+    rate = np.mean(table[counts] < 0.01)
+    assert rate < 0.01 + 3 * np.sqrt(0.01 * 0.99 / 20000) + 0.002  # mid-p: ~1.07 % at 1 %
+
+
+def test_a_variance_floor_that_decides_is_named():
+    full = {"k": 0.5, "k_std": 0.499}
+    # Var(k_sub - k_full) = 0.25 - 0.249 = 0.001 (pull 3.2, fails) floored at 0.05 σ_sub² (pull 0.9)
+    row = pull_row({"k": 0.6, "k_std": 0.5}, full, left_out="A")
+    p, passed, worst, floor = combined_pulls([row], 0.01)
+    assert passed and worst["left_out"] == "A" and row["p_unfloored"] < 0.01
+    assert "rests on a variance floor" in floor and "would fail" in floor
+    clear = pull_row({"k": 0.6, "k_std": 0.5}, {"k": 0.5, "k_std": 0.3})
+    assert combined_pulls([clear], 0.01)[3] == ""
+
+
 # ----- calibration on clean mocks ----------------------------------------------------------------
 def test_consistency_tests_fail_at_their_nominal_rate():
     alpha = 0.05
@@ -97,7 +124,7 @@ def test_consistency_tests_fail_at_their_nominal_rate():
 
 def test_resampling_tests_fail_at_their_nominal_rate():
     alpha, n_mocks = 0.1, 120
-    fails = {"redshift_permutation": 0, "reference_split": 0, "k0_with_selection": 0}
+    fails = {"redshift_permutation": 0, "reference_split": 0, "k0_false_exclusions": 0}
     fitter = LinearFitter()
     for r in range(n_mocks):
         cat = mock_catalog(np.random.default_rng([102, r]), 0.0,
@@ -163,19 +190,38 @@ def cut_catalog():
     return cat.subset((cat.sample == "S0") | (cat.log_mbh > CUT))
 
 
-def test_k0_with_selection_flags_an_undeclared_cut_and_passes_the_declared_one():
+def test_k0_with_selection_needs_a_declared_selection_and_flags_an_incomplete_one():
     cat = cut_catalog()
-    undeclared = run_null_tests(RunConfig(), data_of(cat), seed=4, repeats=40,
+    undeclared = run_null_tests(RunConfig(), data_of(cat), seed=4, repeats=10,
                                 tests=["k0_with_selection"])["tests"]["k0_with_selection"]
-    assert undeclared["passed"] is False and undeclared["p_value"] < 1e-3
-    assert undeclared["details"]["k_observed"] < -0.3  # the plain fit finds k < 0
-    assert "selection is not fully declared" in undeclared["note"]
-    # (a clean design fails this test with probability ~alpha = 0.01 whatever the seed; seed 4 is
-    # such a case: 7 of its 40 mocks exclude k = 0, binomial p = 0.003. Over 300 mocks the
-    # selection-aware estimator excludes k = 0 in 5.3 % of them.)
+    assert undeclared["passed"] is None and undeclared["p_value"] is None
+    assert "no selection is declared" in undeclared["skipped"]
+    assert undeclared["note"].startswith("Not applicable")
     declared = run_null_tests(RunConfig(), data_of(cat, {"S1": {"kind": "mass_cut", "log_mbh_min": CUT}}),
                               seed=5, repeats=40, tests=["k0_with_selection"])["tests"]["k0_with_selection"]
     assert declared["passed"] is True
+    # a cut declared softer than the real one: the declared selection alone does not explain k
+    softer = run_null_tests(RunConfig(), data_of(cat, {"S1": {"kind": "mass_cut", "log_mbh_min": 7.5}}),
+                            seed=5, repeats=40, tests=["k0_with_selection"])["tests"]["k0_with_selection"]
+    assert softer["passed"] is False and softer["p_value"] < 1e-3
+    assert "selection is not fully declared" in softer["note"]
+
+
+class InflatedFitter(LinearFitter):
+    """The closed-form fit with its standard deviation of k tripled: intervals far too wide."""
+
+    def __call__(self, catalog, **kwargs):
+        out = super().__call__(catalog, **kwargs)
+        return {**out, "k_std": 3.0 * out["k_std"]}
+
+
+def test_false_exclusions_flag_too_few_as_well_as_too_many():
+    cat = mock_catalog(np.random.default_rng(12), 0.0, samples=((0.03, 40, "dyn"), (1.0, 40, "dyn")))
+    row = run_null_tests(RunConfig(), data_of(cat), seed=3, repeats=100, fitter=InflatedFitter(),
+                         tests=["k0_false_exclusions"])["tests"]["k0_false_exclusions"]
+    assert row["details"]["false_exclusions"] == 0 and row["details"]["mocks"] == 100
+    assert row["passed"] is False and row["p_value"] == pytest.approx(0.95**100)
+    assert "too wide" in row["note"]
 
 
 def test_permutation_keeps_each_objects_selection():
@@ -203,14 +249,25 @@ def test_tests_that_cannot_run_say_why():
     one = mock_catalog(np.random.default_rng(7), 0.0, samples=((0.5, 30, "d"),))
     result = run_null_tests(RunConfig(), data_of(one), seed=1, repeats=3,
                             tests=["reference_split", "leave_samples_out", "host_mass_matching",
-                                   "single_method"])
+                                   "single_method", "leave_sources_out", "k0_with_selection"])
     reasons = {name: row["skipped"] for name, row in result["tests"].items()}
+    assert "no source column" in reasons["leave_sources_out"]
+    assert "no selection is declared" in reasons["k0_with_selection"]
     assert "only one sample" in reasons["reference_split"]
     assert "fewer than three" in reasons["leave_samples_out"]
     assert "only one sample" in reasons["host_mass_matching"]
     assert "same mass method" in reasons["single_method"]
     assert all(row["passed"] is None for row in result["tests"].values())
-    assert result["failed"] == []
+    assert result["failed"] == [] and set(result["not_applicable"]) == set(reasons)
+    assert "Not applicable here" in result["summary"][-1]
+
+
+def test_permutation_cannot_fail_when_every_block_sits_at_one_redshift():
+    cat = mock_catalog(np.random.default_rng(7), 0.0, samples=((0.03, 30, "dyn"), (1.2, 30, "virial")),
+                       z_spread=0.0)
+    row = run_null_tests(RunConfig(), data_of(cat), seed=1, repeats=3,
+                         tests=["redshift_permutation"])["tests"]["redshift_permutation"]
+    assert row["passed"] is None and "single redshift" in row["skipped"]
 
 
 @pytest.mark.parametrize("kwargs, message", [

@@ -155,6 +155,26 @@ def test_challenge_verdicts_are_shown(page, folders):
     assert page.count(claim) >= 2 and esc(challenge["verdict"]["null"]["text"]) in page
 
 
+def test_challenge_leads_with_status_words_and_shows_nuisance_pulls(page, folders):
+    challenge = json.loads((folders["challenge"] / "challenge.json").read_text())
+    for label in ("claim", "null"):
+        status = challenge["verdict"][label]["status"]
+        assert status in ("consistent", "not consistent", "depends on assumptions")
+        k = challenge["hypotheses"][label]["k"]
+        name = f"claimed k = {fmt(k, 2)}" if label == "claim" else f"no coupling, k = {fmt(k, 2)}"
+        assert f"<strong>{esc(name)}: {esc(status)}.</strong>" in page
+    assert "What each hypothesis needs" in page and "offsets of its mocks (pull)" in page
+
+
+def test_a_test_that_cannot_fail_reads_not_applicable_with_its_reason(page, folders):
+    document = json.loads((folders["nulltests"] / "nulltests.json").read_text())
+    reasons = [row["skipped"] for row in document["tests"].values() if row["passed"] is None]
+    assert reasons  # one sample and no selection: several tests cannot fail here
+    assert "not applicable" in page
+    for reason in reasons:
+        assert esc(reason) in page
+
+
 def test_method_references_and_provenance(page, folders):
     for reference in ("ApJ 882, 19", "ApJL 944, L31", "ApJ 665, 1489", "arXiv:1804.06788", "ARA&amp;A 52, 415"):
         assert reference in page

@@ -5,25 +5,26 @@ the data's kind like the data, the context every test receives, and the test sta
   selections of the samples present and a zero-point method that exists in it;
 - `NullContext`: the data, its observed fit, the seeds and the threshold;
 - statistics: `nested_pull` (Hausman 1978, Econometrica 46, 1251: for nested efficient estimators
-  Var(k_sub - k_full) = σ_sub² - σ_full²), `bonferroni`, `monte_carlo_p`, `binomial_excess_p`.
+  Var(k_sub - k_full) = σ_sub² - σ_full²), `bonferroni`, `monte_carlo_p`, `binomial_two_sided_p`;
+- design facts: `redshift_confounding` (how strongly method and host type go with redshift).
 """
 
-from dataclasses import dataclass, replace
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 from scipy import stats
 
 from ..errors import ConfigError
-from ..inference.laplace import find_map, laplace
+from ..inference.laplace import laplace
 from ..inference.fit import FitData, build_model
 from ..inference.k_estimate import CAMPAIGN_MAX_STEPS, MODES, estimate_k
-from ..campaigns.mocks import design_truth
 from ..data.catalog import Catalog
 from ..model.truth import Truth
 from ..seeding import child_seed
+from .significance import nuisances_at
 
 #: Default significance level of every null test (a test fails when its p-value is below it).
-#: Six tests at 1 % each give a clean data set a ~6 % chance that one of them fails.
+#: Eight tests at 1 % each give a clean data set a ~8 % chance that one of them fails.
 ALPHA = 0.01
 #: Nominal level of the intervals whose false-positive rate the k = 0 test checks.
 INTERVAL_LEVEL = 0.95
@@ -31,6 +32,9 @@ INTERVAL_LEVEL = 0.95
 #: has a tiny, noisily estimated difference variance.
 MIN_DIFFERENCE_VARIANCE = 0.05
 DEFAULT_REPEATS = 100
+#: A label (mass method, host type) counts as confounded with redshift when it explains at least
+#: this fraction of the variance of the lever arm log10(1 + z) (correlation ratio η²).
+CONFOUNDING_ETA2 = 0.1
 
 
 @dataclass(frozen=True, eq=False)
@@ -109,6 +113,7 @@ class NullContext:
     seed : int, root of the per-test, per-repeat seeds (`child_seed(seed, test, repeat)`)
     repeats : int, permutations, splits and k = 0 mocks per test
     alpha : float, significance level of every test
+    cache : dict, results shared between tests (e.g. the k = 0 mocks' fits)
     """
 
     config: object
@@ -118,25 +123,27 @@ class NullContext:
     seed: int
     repeats: int = DEFAULT_REPEATS
     alpha: float = ALPHA
+    cache: dict = field(default_factory=dict)
 
     def null_truth(self, k=0.0):
         """Truth table of the data's design at coupling `k` (see `truth_at`)."""
         return truth_at(self.config, self.data, k)
 
+    def null_nuisances(self, k=0.0):
+        """Truth table at coupling `k` and its offsets against their priors (see `truth_at`)."""
+        return truth_at(self.config, self.data, k, offsets=True)
 
-def truth_at(config, data: FitData, k: float) -> Truth:
+
+def truth_at(config, data: FitData, k: float, offsets: bool = False) -> Truth | tuple:
     """Truth table of the data's design at coupling `k`: the nuisance parameters maximise the
     posterior of the run's model (selection-aware when a selection is declared) with k held fixed.
+    With `offsets`, also the offsets' values, prior widths and pulls (`significance.offset_nuisances`).
 
     Raises ConfigError when k lies outside the prior range of k.
     """
     model = Fitter(config, data).model(data.catalog)
-    low, high = model.lower[model.index_k], model.upper[model.index_k]
-    if not low < k < high:
-        raise ConfigError(f"k = {k:g} is outside the prior range of k [{low:g}, {high:g}]")
-    start = laplace(model).theta
-    theta, _, _ = find_map(model, start, fixed={model.index_k: float(k)})
-    return design_truth(model, theta, k)
+    truth, table = nuisances_at(model, laplace(model).theta, k)
+    return (truth, table) if offsets else truth
 
 
 def make_context(config, data, *, mode="fast", seed=0, repeats=DEFAULT_REPEATS, alpha=ALPHA,
@@ -153,15 +160,21 @@ def make_context(config, data, *, mode="fast", seed=0, repeats=DEFAULT_REPEATS, 
 
 
 # ----- statistics --------------------------------------------------------------------------------
-def nested_pull(sub, full):
+def nested_pull(sub, full, floor=True):
     """(k_sub - k_full) / sqrt(σ_sub² - σ_full²): the pull of a subset's k against the full data's.
 
     For nested, efficient estimators the difference is independent of the full estimate, so its
     variance is the difference of the variances (Hausman 1978, Econometrica 46, 1251). The variance
-    is floored at MIN_DIFFERENCE_VARIANCE σ_sub².
+    is floored at MIN_DIFFERENCE_VARIANCE σ_sub² (`floor=False`: not floored; ±inf when the
+    difference of the variances is not positive).
     """
-    var = max(sub["k_std"] ** 2 - full["k_std"] ** 2, MIN_DIFFERENCE_VARIANCE * sub["k_std"] ** 2)
-    return (sub["k"] - full["k"]) / np.sqrt(var)
+    var = sub["k_std"] ** 2 - full["k_std"] ** 2
+    if floor:
+        var = max(var, MIN_DIFFERENCE_VARIANCE * sub["k_std"] ** 2)
+    difference = sub["k"] - full["k"]
+    if var <= 0:
+        return float(np.copysign(np.inf, difference)) if difference else 0.0
+    return float(difference / np.sqrt(var))
 
 
 def two_sided_p(pull):
@@ -210,11 +223,47 @@ def predictive_p(observed, draws):
     return float(2.0 * stats.t.sf(abs(observed - np.mean(draws)) / scale, n - 1))
 
 
-def binomial_excess_p(successes, trials, rate):
-    """P(X >= successes) for X ~ Binomial(trials, rate): small when there are too many successes."""
+def binomial_two_sided_p(successes, trials, rate):
+    """Two-sided mid-p value of `successes` for X ~ Binomial(trials, rate): small when there are too
+    many successes and when there are too few.
+
+    p = 2 min(P(X < x) + P(X = x)/2, P(X > x) + P(X = x)/2), at most 1. The mid-p value (Lancaster
+    1961, JASA 56, 223) halves the probability of the observed count, so its false-alarm rate stays
+    close to the nominal one although X is discrete; e.g. 0 of 100 at rate 0.05 gives p = 0.0059.
+    """
     if trials == 0:
         return 1.0
-    return float(stats.binom.sf(successes - 1, trials, rate))
+    half = 0.5 * stats.binom.pmf(successes, trials, rate)
+    lower = stats.binom.cdf(successes - 1, trials, rate) + half
+    upper = stats.binom.sf(successes, trials, rate) + half
+    return float(min(1.0, 2.0 * min(lower, upper)))
+
+
+def redshift_confounding(catalog):
+    """How strongly each label with two or more groups goes with redshift.
+
+    Returns
+    -------
+    dict {"method" / "host_type": η²}: the fraction of the variance of log10(1 + z) explained by
+    the label's groups (the correlation ratio; 1 when every group sits at its own redshift).
+    Labels with a single group are left out.
+    """
+    x = np.log10(1.0 + np.asarray(catalog.z, dtype=float))
+    total = np.sum((x - x.mean()) ** 2)
+    out = {}
+    for name in ("method", "host_type"):
+        labels = getattr(catalog, name)
+        groups = list(dict.fromkeys(labels.tolist()))
+        if len(groups) < 2:
+            continue
+        between = sum(np.sum(labels == g) * (x[labels == g].mean() - x.mean()) ** 2 for g in groups)
+        out[name] = float(between / total) if total > 0 else 1.0
+    return out
+
+
+def confounded_labels(catalog):
+    """Labels whose groups differ in redshift enough to mimic a coupling (η² >= CONFOUNDING_ETA2)."""
+    return [name for name, eta2 in redshift_confounding(catalog).items() if eta2 >= CONFOUNDING_ETA2]
 
 
 def make_result(name, title, *, null_hypothesis, statistic, value, p_value, threshold, passed,
@@ -226,10 +275,11 @@ def make_result(name, title, *, null_hypothesis, statistic, value, p_value, thre
             "details": details or {}}
 
 
-def skipped_result(name, title, null_hypothesis, statistic, reason):
+def skipped_result(name, title, null_hypothesis, statistic, reason, details=None):
+    """A test that cannot fail for its stated reason on these data: passed = None, with the reason."""
     return make_result(name, title, null_hypothesis=null_hypothesis, statistic=statistic, value=None,
-                       p_value=None, threshold=None, passed=None, note=f"Skipped: {reason}.",
-                       skipped=reason)
+                       p_value=None, threshold=None, passed=None, note=f"Not applicable: {reason}.",
+                       skipped=reason, details=details)
 
 
 # ----- the suite ---------------------------------------------------------------------------------

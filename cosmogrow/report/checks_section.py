@@ -84,8 +84,9 @@ def nulltests_table(document):
     for name, row in null_test_rows(document):
         passed = test_passed(row)
         verdict = Cell("pass" if passed else ("FAIL" if passed is False else
-                                              ("skipped" if dig(row, "skipped") else "–")),
-                       "good" if passed else ("bad" if passed is False else None))
+                                              ("not applicable" if dig(row, "skipped") else "–")),
+                       "good" if passed else ("bad" if passed is False else None),
+                       title=dig(row, "skipped") if passed is None else None)
         interval = dig(row, "interval", default=dig(row, "interval95"))
         rows.append([dig(row, "title", default=name), verdict, _statistic_value(row),
                      fmt_p(_first(row, _P_KEYS)), fmt_interval(interval, 2) if interval else "–",
@@ -94,8 +95,10 @@ def nulltests_table(document):
         return None
     return table(["test", "result", "statistic", "p-value", "95 % range under the null", "threshold",
                   "what it says"], rows, numeric=[2, 3, 4],
-                 caption="Null tests: each passes or fails at its stated threshold; their null "
-                         "hypotheses and statistics are listed below the table.")
+                 caption="Null tests: each passes or fails at its stated threshold (one p-value per "
+                         "test); \"not applicable\" marks a test that cannot fail for its stated reason "
+                         "on these data, with the reason. Null hypotheses and statistics are listed "
+                         "below the table.")
 
 
 def nulltests_definitions(document):
@@ -129,6 +132,11 @@ def nulltests_facts(document):
     labels = (("alpha", "level of each test"), ("repeats", "repeats per test"),
               ("seed", "seed"), ("selection_modelled", "selection modelled"))
     pairs += [(label, fmt(dig(document, key))) for key, label in labels if dig(document, key) is not None]
+    confounding = dig(document, "confounding")
+    if isinstance(confounding, dict) and confounding:
+        words = {"method": "mass method", "host_type": "host type"}
+        pairs.append(("share of the variance of log(1+z) explained by",
+                      ", ".join(f"{words.get(name, name)} {fmt(value, 2)}" for name, value in confounding.items())))
     return pairs
 
 
@@ -167,7 +175,7 @@ def nulltests_glance(document):
     if k is not None:
         text = f"data k = {fmt(k, 2)} ({estimator_words(document)}); " + text
     if ran < len(rows):
-        text += f" ({len(rows) - ran} skipped)"
+        text += f" ({len(rows) - ran} not applicable)"
     return text + (f"; failed: {', '.join(failed)}" if failed else "")
 
 
@@ -181,22 +189,37 @@ def claimed_k(document):
     return _first(document, ("claim", "claimed_k", "k_claim", "k_claimed"))
 
 
+STATUS_TONES = {"consistent": "good", "not consistent": "bad", "depends on assumptions": "info"}
+
+
 def _verdicts(document):
-    """[(label, consistent or None, text)] of the challenge's verdicts, the claim first."""
+    """[(label, status or None, consistent or None, text)] of the challenge's verdicts, the claim
+    first."""
     verdict = _first(document, ("verdict", "conclusion"))
     if isinstance(verdict, str):
-        return [("claim", dig(document, "consistent"), verdict)]
+        return [("claim", None, dig(document, "consistent"), verdict)]
     if isinstance(verdict, dict):
         if isinstance(_first(verdict, ("text", "message")), str):
-            return [("claim", dig(verdict, "consistent"), _first(verdict, ("text", "message")))]
-        return [(label, dig(row, "consistent"), dig(row, "text")) for label, row in verdict.items()
-                if isinstance(dig(row, "text"), str)]
+            return [("claim", dig(verdict, "status"), dig(verdict, "consistent"),
+                     _first(verdict, ("text", "message")))]
+        return [(label, dig(row, "status"), dig(row, "consistent"), dig(row, "text"))
+                for label, row in verdict.items() if isinstance(dig(row, "text"), str)]
     return []
 
 
+def _tone(status, consistent):
+    if status in STATUS_TONES:
+        return STATUS_TONES[status]
+    return "bad" if consistent is False else ("good" if consistent else "info")
+
+
 def verdict_text(document):
+    """The claim's verdict: its status word first, then its sentence."""
     verdicts = _verdicts(document)
-    return verdicts[0][2] if verdicts else None
+    if not verdicts:
+        return None
+    _, status, _, text = verdicts[0]
+    return f"{status}: {text}" if status else text
 
 
 def _observed_text(value):
@@ -215,8 +238,8 @@ def challenge_facts(document):
                   for name, value in observed.items()]
     elif observed is not None:
         pairs.append((f"k of the data ({words})", _observed_text(observed)))
-    labels = (("replicas", "mocks per hypothesis"), ("alpha", "level"),
-              ("selection_declared", "selection declared"), ("seed", "seed"))
+    labels = (("replicas", "mocks per hypothesis"), ("threshold", "threshold (σ, the fit's)"),
+              ("alpha", "level"), ("selection_declared", "selection declared"), ("seed", "seed"))
     pairs += [(label, fmt(dig(document, key))) for key, label in labels if dig(document, key) is not None]
     return pairs
 
@@ -234,7 +257,7 @@ def distributions_table(document):
     hypotheses = dig(document, "hypotheses")
     if not isinstance(hypotheses, dict):
         return None
-    alpha = as_float(dig(document, "alpha")) or 0.05
+    alpha = as_float(dig(document, "alpha")) or 0.0027
     rows = []
     for label, row in hypotheses.items():
         for name, cell in (row.items() if isinstance(row, dict) else []):
@@ -278,16 +301,54 @@ def _p_value_table(document):
                          "under k = 0.")
 
 
+def needs_table(document):
+    """One row per hypothesis: its status, the fit's verdict on the same k, the offsets its mocks
+    were drawn with and their pulls against their priors, the estimator's bias in its mocks."""
+    hypotheses = dig(document, "hypotheses")
+    if not isinstance(hypotheses, dict):
+        return None
+    rows = []
+    for label, row in hypotheses.items():
+        pulls = dig(row, "nuisance_pulls")
+        if not isinstance(pulls, dict):
+            continue
+        values = dig(row, "nuisance_values", default={}) or {}
+        offsets = "; ".join(f"{name} = {fmt(values.get(name), 2, signed=True)} dex "
+                            f"({fmt(pull, 1, signed=True)}σ)" for name, pull in pulls.items()) or "none"
+        far = any(abs(as_float(pull) or 0.0) > 2 for pull in pulls.values())
+        status = dig(document, "verdict", label, "status")
+        fit = dig(document, "fit_verdicts", label) or {}
+        low, high = (dig(fit, "sigma_range") or [None, None])[:2]
+        fit_text = (f"{dig(fit, 'verdict')} ({fmt(dig(fit, 'sigma'), 1)}σ; "
+                    f"{fmt(low, 1)}–{fmt(high, 1)}σ from ⅓× to 3× the offset widths)") if fit else "–"
+        bias = as_float(dig(row, "selection_aware", "bias_sigma"))
+        rows.append([_hypothesis_name(label, dig(row, "k")),
+                     Cell(status or "–", {"consistent": "good", "not consistent": "bad"}.get(status)),
+                     Cell(fit_text, "text"), Cell(offsets, "bad" if far else "text"),
+                     Cell(fmt(bias, 2, signed=True),
+                          "bad" if bias is not None and abs(bias) > 0.5 else None)])
+    if not rows:
+        return None
+    return table(["hypothesis", "status", "the fit's verdict on this k", "offsets of its mocks (pull)",
+                  "estimator bias (σ of mocks)"], rows, numeric=[4],
+                 caption="What each hypothesis needs. Pulls are offsets over their prior standard "
+                         "deviation (red beyond 2); the bias is that of the selection-aware fit in the "
+                         "hypothesis' own mocks (red beyond 0.5σ). \"Depends on assumptions\" follows "
+                         "the fit's verdict rules on the same data and threshold.")
+
+
 def challenge_context(document, folder=None):
-    """Data of the template sections/challenge.html.j2: verdicts (text, tone), further summary
-    lines, facts, the table of mock distributions."""
-    verdicts = [{"text": text, "tone": "bad" if consistent is False else ("good" if consistent else "info")}
-                for _, consistent, text in _verdicts(document)]
+    """Data of the template sections/challenge.html.j2: verdicts (status, text, tone), further
+    summary lines, facts, the table of what each hypothesis needs, the table of mock distributions."""
+    verdicts = [{"title": _hypothesis_name(label, dig(document, "hypotheses", label, "k")),
+                 "status": status, "text": text, "tone": _tone(status, consistent)}
+                for label, status, consistent, text in _verdicts(document)]
     shown = {v["text"] for v in verdicts}
     summary = dig(document, "summary")
     return {"verdicts": verdicts,
             "lines": [line for line in _lines(summary) if line not in shown] if isinstance(summary, list) else [],
             "facts": challenge_facts(document),
+            "needs": needs_table(document),
             "table": distributions_table(document) or _p_value_table(document),
             "summary_md": folder.texts.get("summary.md") if folder is not None else None}
 

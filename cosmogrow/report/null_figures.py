@@ -12,7 +12,7 @@ _PASS, _FAIL, _SKIP = style.PALETTE[0], style.PALETTE[4], style.PALETTE[3]
 
 def _status(row):
     if row["passed"] is None:
-        return "skipped", _SKIP
+        return "not applicable", _SKIP
     return ("pass", _PASS) if row["passed"] else ("FAIL", _FAIL)
 
 
@@ -40,8 +40,9 @@ def _panel(ax, row, observed):
     details = row.get("details", {})
     name = row["name"]
     if name == "redshift_permutation":
-        _histogram(ax, details["k_permuted"], details["k_observed"], "shuffled z", style.colour(1))
-        ax.set_xlabel("k")
+        _histogram(ax, details["t_permuted"], details["t_observed"], "z shuffled within blocks",
+                   style.colour(1))
+        ax.set_xlabel("k / σ_k")
     elif name == "reference_split":
         ks, stds = np.asarray(details["k_splits"]), np.asarray(details["k_std_splits"])
         _histogram(ax, ks / stds, 0.0, "splits", style.colour(2))
@@ -55,6 +56,17 @@ def _panel(ax, row, observed):
         if "k_matched" in details:
             _errorbars(ax, ["matched"], [details["k_matched"]], [details["k_std_matched"]],
                        observed["k"], observed["k_std"])
+    elif name == "leave_sources_out":
+        rows = details["sources"]
+        _errorbars(ax, [f"without {r['left_out']}" for r in rows], [r["k"] for r in rows],
+                   [r["k_std"] for r in rows], observed["k"], observed["k_std"])
+    elif name == "k0_false_exclusions":
+        ks, stds = np.asarray(details["k_mocks"]), np.asarray(details["k_std_mocks"])
+        _histogram(ax, ks / stds, 0.0, "k = 0 mocks", style.colour(5))
+        ax.lines[-1].set_label("k = 0")
+        for edge in (-1.96, 1.96):
+            ax.axvline(edge, color=style.INK, lw=0.8, ls=":")
+        ax.set_xlabel("k / σ_k of each mock (dotted: 95 % limits)")
     elif name == "single_method":
         rows = details["methods"]
         _errorbars(ax, [f"{r['method']} only" for r in rows], [r["k"] for r in rows],
@@ -123,11 +135,8 @@ def challenge_figure(result, path):
     axes[0].set_ylabel("mocks")
     for ax in axes:
         style.integer_counts(ax)
-    verdict = result["verdict"]["claim"]
-    fig.suptitle(f"Claimed k = {result['claim']:g}: "
-                 f"{'consistent' if verdict['consistent'] else 'NOT consistent'} "
-                 f"(p = {verdict['p_value']:.2g}); k = 0: "
-                 f"{'consistent' if result['verdict']['null']['consistent'] else 'NOT consistent'} "
-                 f"(p = {result['verdict']['null']['p_value']:.2g})", fontsize=11)
+    claim, null = result["verdict"]["claim"], result["verdict"]["null"]
+    fig.suptitle(f"Claimed k = {result['claim']:g}: {claim['status']} (p = {claim['p_value']:.2g}); "
+                 f"k = 0: {null['status']} (p = {null['p_value']:.2g})", fontsize=11)
     fig.tight_layout()
     style.save(fig, path)

@@ -96,8 +96,10 @@ def check_alpha(alpha):
     return alpha
 
 
-def add_check_options(parser, *, out_default, count_option, count_default, count_help, alpha, alpha_help):
-    """The options shared by the commands that fit mocks of a run's design (nulltest, challenge)."""
+def add_check_options(parser, *, out_default, count_option, count_default, count_help, alpha=None,
+                      alpha_help=None):
+    """The options shared by the commands that fit mocks of a run's design (nulltest, challenge);
+    `--alpha` only when `alpha` is given."""
     parser.add_argument("--config", required=True, help="run configuration (TOML)")
     parser.add_argument("--out", default=out_default, help=f"results folder (default: {out_default})")
     add_seed_option(parser, "random seed (default: the config's, else chosen and recorded)")
@@ -106,7 +108,8 @@ def add_check_options(parser, *, out_default, count_option, count_default, count
                         help=f"{count_help} (default {count_default})")
     parser.add_argument("--mode", choices=("fast", "mcmc"), default="fast",
                         help="estimator: fast (MAP + Laplace, default) or mcmc")
-    parser.add_argument("--alpha", type=float, default=alpha, help=f"{alpha_help} (default {alpha:g})")
+    if alpha is not None:
+        parser.add_argument("--alpha", type=float, default=alpha, help=f"{alpha_help} (default {alpha:g})")
     parser.add_argument("--quiet", action="store_true", help="no progress lines")
 
 

@@ -2,9 +2,9 @@
 
 import sys
 
-from ...checks.challenge import ALPHA, DEFAULT_REPLICAS, challenge_claim
+from ...checks.challenge import DEFAULT_REPLICAS, challenge_claim
 from ... import validate
-from ._common import add_check_options, check_alpha, load_checked_run, write_check_outputs
+from ._common import add_check_options, load_checked_run, write_check_outputs
 
 
 def register(subparsers):
@@ -12,11 +12,14 @@ def register(subparsers):
         "challenge", help="test a claimed k against mocks of the data's own design",
         description="Simulate the data's design (with each sample's selection) under a claimed k "
                     "and under k = 0, fit every mock with the plain and the selection-aware "
-                    "likelihood, and place the data's estimate among them.")
+                    "likelihood, and place the data's estimate among them. The verdict words and "
+                    "the threshold are the fit's (docs/method.md#challenge).")
     parser.add_argument("--claim", required=True, type=float, help="the claimed coupling exponent k")
     add_check_options(parser, out_default="challenge", count_option="--replicas",
-                      count_default=DEFAULT_REPLICAS, count_help="mocks per hypothesis, at least 3",
-                      alpha=ALPHA, alpha_help="a hypothesis is inconsistent when p is below this")
+                      count_default=DEFAULT_REPLICAS, count_help="mocks per hypothesis, at least 3")
+    parser.add_argument("--threshold", type=float,
+                        help="significance (σ) at which a hypothesis is not consistent (default: the "
+                             "configuration's verdicts.threshold, else 3, as for `fit`)")
     parser.set_defaults(run=run)
 
 
@@ -32,14 +35,16 @@ def _progress(quiet):
 
 
 def run(args):
+    from ...inference.verdicts import verdict_options
     from ...report.null_figures import challenge_figure
     from ...report.null_markdown import challenge_markdown
 
     validate.number(args.claim, "--claim")  # its range is the run's prior on k (checked with the data)
-    check_alpha(args.alpha)
     config, data = load_checked_run(args)
+    threshold = verdict_options(config.raw.get("verdicts", {}), config.source,
+                                threshold=args.threshold)["threshold"]
     result = challenge_claim(config, data, args.claim, replicas=args.replicas, mode=args.mode,
-                             seed=config.seed, alpha=args.alpha, on_progress=_progress(args.quiet))
+                             seed=config.seed, threshold=threshold, on_progress=_progress(args.quiet))
     text = challenge_markdown(result)
     out = write_check_outputs(args.out, "challenge", result, config, data, text, challenge_figure)
     print(text)
