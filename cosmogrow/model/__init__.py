@@ -1,4 +1,6 @@
-"""The likelihood of coupled growth: the parameter layout, the design arrays, the vectorised log
-posterior with mass-method offsets, host-error treatment and selection terms, and the parent host
-distribution of selected samples (docs/method.md#model).
+"""The likelihood of coupled growth: the parameter layout (layout), the design arrays (design), the
+latent mean shared with the simulator (mean), the vectorised log posterior with mass-method and
+host-type offsets, host-error treatment and selection terms (likelihood), the true parameters of
+mocks (truth), and the parent host distribution of selected samples (hostprior)
+(docs/method.md#model).
 """
