@@ -22,7 +22,7 @@ LAYERS = {
     8: {"checks"},
     9: {"forecast"},
     10: {"report"},
-    11: {"cli"},
+    11: {"cli", "api"},
 }
 # At most a dozen modules directly in cosmogrow/; everything else lives in a folder by concern.
 MAX_TOP_LEVEL_MODULES = 12

@@ -210,6 +210,12 @@ def _load(path, *, sample=None, column_map=None, drop_invalid=False, default_met
     path = Path(path)
     id_name = next((source for source, target in (column_map or {}).items() if target == "id"), "id")
     table, stem = read_table(path, id_name)
+    return catalog_from_table(table, path, stem, sample=sample, column_map=column_map, drop_invalid=drop_invalid,
+                       default_method=default_method)
+
+
+def catalog_from_table(table, path, stem, *, sample=None, column_map=None, drop_invalid=False, default_method=None):
+    """A validated Catalog from an astropy Table read from `path` (a file, or a label for a frame)."""
     if len(table) == 0:
         raise InputError(path, "expected at least one data row; the table is empty")
     names = _column_names(table, column_map, path)
@@ -294,7 +300,7 @@ def read_catalogs(entries):
 
     Parameters
     ----------
-    entries : iterable of path or (path, options)
+    entries : iterable of path or (path, options); a `data.frames.FrameSource` may stand for a path
         `options` is a dict of `read_catalog` keyword arguments (sample, column_map, drop_invalid,
         default_method) or None.
 
@@ -315,7 +321,8 @@ def read_catalogs(entries):
         if unknown:
             raise ConfigError(f"{path}: unknown catalogue option(s) {', '.join(unknown)}; "
                               f"expected one of {', '.join(READ_OPTIONS)}")
-        catalog, report, rows = _load(path, **options)
+        in_memory = hasattr(path, "load")  # a data.frames.FrameSource
+        catalog, report, rows = path.load(**options) if in_memory else _load(path, **options)
         clashes = _earlier_ids(earlier, catalog.ids)
         for index, (other_path, other_row) in clashes.items():
             reason = f"expected a unique id; also in {other_path} row {other_row}"
@@ -327,7 +334,8 @@ def read_catalogs(entries):
         catalog = catalog.subset(keep)
         earlier.append((str(path), catalog.ids, rows[keep]))
         catalogs.append(catalog)
-        inputs.append({"path": str(path), "sha256": sha256_file(path), "rows": len(catalog),
+        digest = path.sha256() if in_memory else sha256_file(path)
+        inputs.append({"path": str(path), "sha256": digest, "rows": len(catalog),
                        "samples": list(catalog.sample_names),
                        "dropped": sorted(report, key=lambda d: d["row"])})
     if not catalogs:
