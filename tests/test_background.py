@@ -17,7 +17,7 @@ def test_planck18_age_matches_paper():
 
 def test_planck18_matter_density_with_neutrinos():
     # Planck 2018 Table 2: Omega_m = 0.3111 ± 0.0056; astropy's Om0 excludes the massive neutrino
-    # (REFERENCES.md trap): Om0 + 0.06 eV / (93.14 eV h^2) recovers it.
+    # (a known trap): Om0 + 0.06 eV / (93.14 eV h^2) recovers it.
     cosmo = background.get_cosmology()
     h = cosmo.H0.value / 100
     assert abs(cosmo.Om0 + 0.06 / (93.14 * h**2) - 0.3111) < 0.0056

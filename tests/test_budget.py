@@ -28,7 +28,7 @@ def test_md14_peak_redshift_near_1p9():
 
 def test_md14_stellar_mass_density_today():
     # (1 - R) ∫ psi dt with R = 0.27 gives the model's stellar density today, 5.8e8 Msun Mpc^-3
-    # (Madau & Dickinson 2014 [paper]); 5.76e8 [computed, REFERENCES.md] pins the convention.
+    # (Madau & Dickinson 2014 [paper]); 5.76e8 [computed with astropy] pins the convention.
     history = budget.formation_history(MD14_COSMOLOGY, MD14_SFR, eps_bh=1 - MD14_RETURN_FRACTION)
     rho_star = budget.comoving_density(history, 0.0)
     assert rho_star == pytest.approx(5.8e8, rel=0.03)
@@ -86,13 +86,13 @@ def test_sfr_table_missing_file(tmp_path):
 
 @pytest.mark.parametrize("m_min", [8.0, 20.0, 25.0, 40.0])
 def test_salpeter_mass_fraction_matches_analytic(m_min):
-    # Salpeter analytic (REFERENCES.md): f(>m) = (100^-0.35 - m^-0.35) / (100^-0.35 - 0.1^-0.35).
+    # Salpeter analytic: f(>m) = (100^-0.35 - m^-0.35) / (100^-0.35 - 0.1^-0.35).
     expected = (100**-0.35 - m_min**-0.35) / (100**-0.35 - 0.1**-0.35)
     assert imf.salpeter().mass_fraction_above(m_min) == pytest.approx(expected, rel=1e-9)
 
 
 @pytest.mark.parametrize("name, m_min, expected", [
-    # REFERENCES.md [computed; Salpeter also analytic]: mass fraction above 20 / 25 Msun.
+    # [computed; Salpeter also analytic]: mass fraction above 20 / 25 Msun.
     ("salpeter", 20.0, 0.0740), ("salpeter", 25.0, 0.0611),
     ("kroupa", 20.0, 0.1145), ("kroupa", 25.0, 0.0952),
 ])

@@ -142,7 +142,7 @@ def test_hard_cut_is_the_limit_of_a_narrow_probit():
 
 
 def test_flux_threshold_against_hand_computation():
-    # Eddington luminosity per Msun 1.257e38 erg/s (REFERENCES.md, [computed] with astropy constants)
+    # Eddington luminosity per Msun 1.257e38 erg/s ([computed] with astropy constants)
     assert L_EDD_PER_MSUN == pytest.approx(1.257e38, rel=5e-4)
     model = build_selection({"kind": "flux_limit", "flux_limit": 1e-12, "bolometric_correction": 10.0})[0]
     z = 0.7
@@ -152,7 +152,7 @@ def test_flux_threshold_against_hand_computation():
     d_l = Planck18.luminosity_distance(z).to_value(u.cm)
     flux = 0.25 * 1.257e38 * 10 ** lim[0] / (10.0 * 4 * np.pi * d_l**2)
     assert flux == pytest.approx(1e-12, rel=5e-4)
-    assert width[0] == 0.3  # Kollmeier et al. 2006: 0.3 dex (REFERENCES.md [paper, abstract])
+    assert width[0] == 0.3  # Kollmeier et al. 2006: 0.3 dex [paper, abstract]
     by_hand = np.log10(10 * 4 * np.pi * d_l**2 * 1e-12 / 1.257e38) + np.log10(4)
     assert lim[0] == pytest.approx(by_hand, abs=3e-4)
 
@@ -173,16 +173,16 @@ def test_flux_probit_is_the_eddington_ratio_distribution():
 
 
 def test_sphere_of_influence_threshold_against_hand_computation():
-    # r_inf = G M / σ² = 47.79 pc for 1e9 Msun at 300 km/s (REFERENCES.md, [computed])
+    # r_inf = G M / σ² = 47.79 pc for 1e9 Msun at 300 km/s ([computed] with astropy constants)
     assert G_PC_KMS2_PER_MSUN * 1e9 / 300.0**2 == pytest.approx(47.79, abs=0.01)
     model = build_selection({"kind": "sphere_of_influence"})[0]
     z = np.array([0.003, 0.02])
     lim, width = model.threshold(z, np.full(2, 11.0), Planck18)
-    # By hand: at the threshold, σ from Kormendy & Ho 2013 (8.49, 4.38, 200 km/s; REFERENCES.md
+    # By hand: at the threshold, σ from Kormendy & Ho 2013 (8.49, 4.38, 200 km/s;
     # [transcribed]) gives
     # r_inf / D_A = 0.1 arcsec (HST-class resolution, common practice).
     sigma = 200.0 * 10 ** ((lim - 8.49) / 4.38)
-    r_inf_pc = 4.3009e-3 * 10**lim / sigma**2  # G in pc (km/s)² / Msun (REFERENCES.md)
+    r_inf_pc = 4.3009e-3 * 10**lim / sigma**2  # G in pc (km/s)² / Msun (computed with astropy constants)
     d_a_pc = Planck18.angular_diameter_distance(z).to_value(u.pc)
     assert np.allclose(r_inf_pc / d_a_pc * 206264.806, 0.1, rtol=1e-4)  # 206264.806″ per radian
     assert np.allclose(width, 2 * 0.29 / (4.38 - 2))  # the derived width, not the M-σ scatter

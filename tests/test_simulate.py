@@ -14,7 +14,7 @@ from cosmogrow.model.likelihood import calibrated_hosts
 from cosmogrow.selection.compiled import SelectionSet
 from cosmogrow.simulation.population import RedshiftSampler, resample_hosts, simulate_population
 
-# Baldry et al. 2012 (MNRAS 421, 621) double Schechter, h = 0.7 (REFERENCES.md [paper, abstract]):
+# Baldry et al. 2012 (MNRAS 421, 621) double Schechter, h = 0.7 [paper, abstract]:
 # M* = 10^10.66 Msun, φ1 = 3.96e-3, α1 = -0.35, φ2 = 0.79e-3 Mpc^-3, α2 = -1.47.
 LOG_MCHAR, PHI1, ALPHA1, PHI2, ALPHA2 = 10.66, 3.96e-3, -0.35, 0.79e-3, -1.47
 

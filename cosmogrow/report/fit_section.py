@@ -316,6 +316,12 @@ def zero_point_text(summary):
     return "–"
 
 
+HOST_ERROR_WORDS = {
+    "calibrated": "regression calibration with each sample's parent host distribution (docs/method.md#host-errors)",
+    "first_order": "first order: the host error added in quadrature (biases k when host ranges differ)",
+}
+
+
 def model_facts(summary):
     """(term, text) facts of the fit: how k is quoted, the likelihood, the model's choices."""
     model = dig(summary, "config", "model", default={})
@@ -324,6 +330,7 @@ def model_facts(summary):
              ("likelihood", fit_kind_label(summary)),
              ("zero-point mass method", zero_point_text(summary)),
              ("relation form", fmt(dig(model, "form"))), ("intrinsic scatter", fmt(dig(model, "scatter"))),
+             ("host-mass errors", HOST_ERROR_WORDS.get(dig(model, "host_errors"), "–")),
              ("reference redshift z_ref", fmt(dig(model, "z_ref"), 2)),
              ("host-mass pivot (log₁₀ M☉)", fmt(dig(model, "log_mstar_pivot"), 2))]
     return [(term, text) for term, text in pairs if text != "–"]

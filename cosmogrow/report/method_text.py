@@ -13,9 +13,13 @@ METHOD = tuple(Markup(text) for text in (
     "with <var>a</var> = 1/(1+<var>z</var>) (Croker &amp; Weiner 2019). cosmogrow projects every "
     "black-hole mass to a reference epoch and fits one population relation there: "
     "log M<sub>BH</sub> = <var>α</var> + <var>β</var> (log M<sub>*</sub> − pivot) − <var>k</var> "
-    "log<sub>10</sub>[(1+<var>z</var>)/(1+<var>z</var><sub>ref</sub>)] + <var>δ</var><sub>method</sub>, "
-    "with Gaussian intrinsic scatter <var>σ</var><sub>int</sub> and the measurement errors of both masses "
-    "added in quadrature (first-order errors in variables; Kelly 2007 treats them exactly). In the ratio "
+    "log<sub>10</sub>[(1+<var>z</var>)/(1+<var>z</var><sub>ref</sub>)] + <var>δ</var><sub>method</sub> "
+    "+ <var>δ</var><sub>host type</sub>, with Gaussian intrinsic scatter <var>σ</var><sub>int</sub> and "
+    "the black-hole mass error added in quadrature. Host-mass errors are treated by regression "
+    "calibration unless a fit says otherwise in its facts (Carroll et al. 2006): each observed host "
+    "mass is replaced by its expectation given its sample's parent host distribution, which removes "
+    "the bias first-order errors in variables leave in <var>k</var> (Kelly 2007 treats them exactly). "
+    "In the ratio "
     "form <var>β</var> = 1 and the statistic is log(M<sub>BH</sub>/M<sub>*</sub>), as in the study of "
     "elliptical hosts by Farrah et al. (2023).",
     "When a sample's selection is declared, the likelihood of each object is conditioned on it having "
@@ -62,6 +66,14 @@ REFERENCES = (
      "ApJL 944, L31"),
     ("Kelly, B. C. 2007", "Some aspects of measurement error in linear regression of astronomical data",
      "ApJ 665, 1489"),
+    ("Carroll, R. J., Ruppert, D., Stefanski, L. A. & Crainiceanu, C. M. 2006",
+     "Measurement error in nonlinear models, 2nd ed., ch. 4: regression calibration of host masses",
+     "Chapman & Hall/CRC"),  # [memory]
+    ("Reines, A. E. & Volonteri, M. 2015", "Relations between central black holes and stellar mass in "
+     "low-redshift galaxies: AGN hosts lie below quiescent early types (host-type offsets)",
+     "ApJ 813, 82"),
+    ("Cowan, G., Cranmer, K., Gross, E. & Vitells, O. 2011", "Asymptotic formulae for likelihood-based "
+     "tests of new physics: offsets entered as constraint terms", "EPJC 71, 1554"),  # [memory]
     ("Talts, S., Betancourt, M., Simpson, D., Vehtari, A. & Gelman, A. 2018",
      "Validating Bayesian inference algorithms with simulation-based calibration", "arXiv:1804.06788"),
     ("Madau, P. & Dickinson, M. 2014", "Cosmic star-formation history (Eq. 15 is the default "

@@ -22,10 +22,10 @@ from ..errors import ConfigError
 from ..interpolation import UniformTable
 
 #: Eddington luminosity per solar mass, 4π G Msun m_p c / σ_T (ionised hydrogen), erg/s.
-#: 1.257e38 erg/s with astropy's CODATA 2022 constants (REFERENCES.md, [computed]).
+#: 1.257e38 erg/s with astropy's CODATA 2022 constants ([computed] with astropy constants).
 L_EDD_PER_MSUN = float((4 * np.pi * const.G * const.M_sun * const.m_p * const.c / const.sigma_T)
                        .to_value(u.erg / u.s))
-#: Gravitational constant in pc (km/s)^2 / Msun (4.3009e-3, REFERENCES.md).
+#: Gravitational constant in pc (km/s)^2 / Msun (4.3009e-3, computed with astropy constants).
 G_PC_KMS2_PER_MSUN = float(const.G.to_value(u.pc * u.km**2 / u.s**2 / u.Msun))
 ARCSEC_IN_RAD = float((1 * u.arcsec).to_value(u.rad))
 #: Thresholds are floored here (e.g. at z = 0, where every object passes a flux or SOI limit).
