@@ -55,7 +55,7 @@ _SAMPLE_KEYS = {"name", "path", "columns", "method", "selection", "drop_invalid"
 
 
 @dataclass(frozen=True)
-class SampleSpec:
+class CatalogSample:
     """One sample of a run: where its catalogue is and how to read and select it."""
 
     path: Path
@@ -122,7 +122,7 @@ class RunConfig:
             config = replace(config, seed=validate.seed(seed, "--seed"))
         if catalogs:
             known = {spec.path.resolve(): spec for spec in config.samples}
-            samples = tuple(known.get(Path(p).resolve(), SampleSpec(path=Path(p))) for p in catalogs)
+            samples = tuple(known.get(Path(p).resolve(), CatalogSample(path=Path(p))) for p in catalogs)
             config = replace(config, samples=samples)
         return config
 
@@ -298,7 +298,7 @@ def _parse_sample(entry, index, base_dir):
     for i, model in enumerate(selection):
         validate.table(model, f"{where}.selection[{i + 1}]")
     drop_invalid = validate.boolean(entry.get("drop_invalid", False), f"{where}.drop_invalid")
-    return SampleSpec(path=path, name=name, columns=dict(columns), method=method,
+    return CatalogSample(path=path, name=name, columns=dict(columns), method=method,
                       selection=tuple(selection), drop_invalid=drop_invalid)
 
 

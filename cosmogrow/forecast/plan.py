@@ -117,7 +117,7 @@ class ForecastPlan:
         return 0.5 * (spec.z_lo + spec.z_hi)
 
     def sim_spec(self, name):
-        """The simulator's SampleSpec of a simulated sample, or None for a kept catalogue."""
+        """The simulator's SimulatedSample of a simulated sample, or None for a kept catalogue."""
         return next((spec for spec in self.sim.samples if spec.name == name), None)
 
     def method_of(self, name):

@@ -34,7 +34,7 @@ SAMPLE_DEFAULTS = {"log_mstar_err": 0.15, "log_mstar_min": 10.0, "log_mstar_max"
 
 
 @dataclass(frozen=True)
-class SampleSpec:
+class SimulatedSample:
     """One simulated sample (see the module note)."""
 
     name: str
@@ -58,7 +58,7 @@ class SampleSpec:
 
 
 def parse_sample(table, index):
-    """A SampleSpec from the index-th [[sample]] table."""
+    """A SimulatedSample from the index-th [[sample]] table."""
     label = f"sample[{index}]"
     if not isinstance(table, dict):
         raise ConfigError(f"{label}: expected a table, got {table!r}")
@@ -101,7 +101,7 @@ def parse_sample(table, index):
     if not isinstance(host_type, str) or not host_type.strip():
         raise ConfigError(f"{label}: key 'host_type': expected a non-empty string, got {host_type!r}")
     selection = build_selection(table.get("selection"), where=label)
-    return SampleSpec(name=name, n=n, z_lo=z_lo, z_hi=z_hi, method=method, **errors, **limits,
+    return SimulatedSample(name=name, n=n, z_lo=z_lo, z_hi=z_hi, method=method, **errors, **limits,
                       selection=selection, host_type=host_type)
 
 
