@@ -15,7 +15,7 @@ from ..errors import ConfigError
 from .laplace import find_map, laplace, start_walkers
 from ..model.hostprior import parent_host_priors
 from ..model.likelihood import CoupledGrowthModel, build_design
-from ..outputs import package_versions
+from ..outputs import StageTimes, package_versions
 from .mcmc import default_walkers, run_ensemble
 from ..seeding import make_rng
 from ..selection.compiled import SelectionSet, build_selection
@@ -97,30 +97,38 @@ def build_model(config, data, *, selection_aware=True, catalog=None, selection_s
     return model
 
 
-def run_fit(config, data, *, chain_path=None, on_check=None, selection_aware=True):
+def run_fit(config, data, *, chain_path=None, on_check=None, selection_aware=True, timer=None):
     """MAP, Laplace, MCMC and the summary of one run.
+
+    `timer` (outputs.StageTimes, optional) receives the seconds of the stages "map" (model, parent
+    host priors, MAP and Hessian), "sampling", "sensitivity", "significance" and "crosscheck".
 
     Returns
     -------
     FitResult
     """
-    model = build_model(config, data, selection_aware=selection_aware)
+    timer = StageTimes() if timer is None else timer
+    with timer.stage("map"):
+        model = build_model(config, data, selection_aware=selection_aware)
+        approx = laplace(model)
     seed = np.random.SeedSequence(config.seed)
     walker_seed, sampler_seed = seed.spawn(2)
-    approx = laplace(model)
-    n_walkers = default_walkers(model.ndim, config.sampler.walkers)
-    start = start_walkers(model, approx, n_walkers, make_rng(walker_seed))
-    chain = run_ensemble(model.log_prob, start, max_steps=config.sampler.max_steps,
-                         autocorr_factor=config.sampler.autocorr_factor,
-                         check_every=config.sampler.check_every, chain_path=chain_path,
-                         seed=sampler_seed, on_check=on_check)
-    summary = summarise(config, data, model, approx, chain)
+    with timer.stage("sampling"):
+        n_walkers = default_walkers(model.ndim, config.sampler.walkers)
+        start = start_walkers(model, approx, n_walkers, make_rng(walker_seed))
+        chain = run_ensemble(model.log_prob, start, max_steps=config.sampler.max_steps,
+                             autocorr_factor=config.sampler.autocorr_factor,
+                             check_every=config.sampler.check_every, chain_path=chain_path,
+                             seed=sampler_seed, on_check=on_check)
+    summary = summarise(config, data, model, approx, chain, timer)
     return FitResult(model=model, laplace=approx, chain=chain, summary=summary)
 
 
-def summarise(config, data, model, approx, chain):
-    """The summary.json content of a fit."""
-    sensitivity = offset_sensitivity(model, approx)
+def summarise(config, data, model, approx, chain, timer=None):
+    """The summary.json content of a fit (`timer`: see `run_fit`)."""
+    timer = StageTimes() if timer is None else timer
+    with timer.stage("sensitivity"):
+        sensitivity = offset_sensitivity(model, approx)
     warnings = degeneracy_warnings(model, data.catalog, approx, sensitivity)
     if not chain.converged:
         warnings.insert(0, f"the chain did not converge: {chain.n_steps} steps is "
@@ -137,11 +145,14 @@ def summarise(config, data, model, approx, chain):
         warnings.append("no selection is declared for any sample: k is only as good as the "
                         "assumption that the samples were not selected on black-hole mass")
     k_summary = describe_samples(chain.samples[:, model.index_k])
-    crosscheck = run_crosscheck(config, data.catalog)
+    with timer.stage("crosscheck"):
+        crosscheck = run_crosscheck(config, data.catalog)
     warnings += crosscheck_warnings(crosscheck, k_summary)
+    with timer.stage("significance"):
+        tests = hypothesis_tests(model, chain, approx)
     return {
         "k": k_summary,
-        "tests": hypothesis_tests(model, chain, approx),
+        "tests": tests,
         "convergence": convergence_block(chain, config.sampler.autocorr_factor),
         "parameters": describe_parameters(model.names, chain.samples),
         "map": {"theta": dict(zip(model.names, approx.theta)), "log_prob": approx.log_prob,

@@ -1,14 +1,12 @@
-"""`cosmogrow fit`: the posterior of k from catalogues."""
+"""`cosmogrow fit`: the posterior of k from catalogues.
+
+Only the standard library is imported at module level, so that `cosmogrow fit --help` answers at
+once; numpy, scipy, astropy, pandas and matplotlib are imported where a fit uses them.
+"""
 
 import shutil
 import sys
 from pathlib import Path
-
-import numpy as np
-
-from ...config import read_run_config
-from ...inference.fit import load_data, run_fit
-from ...outputs import staged_directory, write_json
 
 EXIT_NOT_CONVERGED = 3
 
@@ -25,12 +23,16 @@ def register(subparsers):
     parser.add_argument("--plain", action="store_true", help="ignore declared selection (naive likelihood)")
     parser.add_argument("--resume", action="store_true", help="continue the chain in OUT/chain.h5")
     parser.add_argument("--quiet", action="store_true", help="no progress lines")
+    parser.add_argument("--verbose", action="store_true",
+                        help="print the seconds spent in each stage (also in summary.json 'timings')")
     parser.set_defaults(run=run)
 
 
 def resolve_seed(config, seed):
     """Command-line seed, else the config's, else a fresh one (recorded in the results)."""
     if seed is None and config.seed is None:
+        import numpy as np
+
         seed = int(np.random.SeedSequence().entropy % 2**32)
     return config.with_overrides(seed=seed)
 
@@ -48,38 +50,70 @@ def progress_printer(quiet):
 
 
 def run(args):
-    config = read_run_config(args.config).with_overrides(form=args.form, catalogs=args.catalogs)
-    config = resolve_seed(config, args.seed)
-    data = load_data(config)
+    from ...config import read_run_config
+    from ...inference.fit import load_data, run_fit
+    from ...outputs import StageTimes, staged_directory
+
+    timer = StageTimes()
+    with timer.stage("read"):
+        config = read_run_config(args.config).with_overrides(form=args.form, catalogs=args.catalogs)
+        config = resolve_seed(config, args.seed)
+        data = load_data(config)
     out = Path(args.out)
     with staged_directory(out) as stage:
         if args.resume and (out / "chain.h5").exists():
             shutil.copy2(out / "chain.h5", stage / "chain.h5")
         result = run_fit(config, data, chain_path=stage / "chain.h5", selection_aware=not args.plain,
-                         on_check=progress_printer(args.quiet))
-        write_fit_outputs(stage, config, data, result)
+                         on_check=progress_printer(args.quiet), timer=timer)
+        write_fit_outputs(stage, config, data, result, timer)
     print((out / "summary.md").read_text())
+    if args.verbose:
+        print(format_timings(result.summary["timings"]))
     print(f"results written to {out}/")
     return 0 if result.chain.converged else EXIT_NOT_CONVERGED
 
 
-def write_fit_outputs(folder, config, data, result):
-    """summary.json, summary.md, summary.tex, samples.npz and the figures
-    (corner, relation, offsets, crosscheck)."""
-    from ...report.check_figures import crosscheck_figure
-    from ...report.fit_figures import corner_figure, offsets_figure, relation_figure
-    from ...report.latex import posterior_table
+def format_timings(timings):
+    """The stage timings as aligned lines, slowest first after the total."""
+    stages = sorted(((name, sec) for name, sec in timings.items() if name != "total"),
+                    key=lambda item: -item[1])
+    total = timings.get("total", 0.0) or 1.0
+    lines = [f"stage timings (s): total {timings.get('total', 0.0):.2f}"]
+    lines += [f"  {name:<13s}{sec:8.2f}  {100 * sec / total:5.1f} %" for name, sec in stages]
+    return "\n".join(lines)
+
+
+def write_fit_outputs(folder, config, data, result, timer=None):
+    """summary.md, summary.tex, samples.npz, the figures (corner, relation, offsets, crosscheck) and,
+    last, summary.json with the stage `timings` ("figures" and "writing" included)."""
+    import numpy as np
+
+    from ...outputs import StageTimes, write_json
     from ...report.markdown import fit_markdown
 
+    timer = StageTimes() if timer is None else timer
     summary = result.summary
+    with timer.stage("figures"):
+        _draw_figures(folder, config, data, result)
+    with timer.stage("writing"):
+        from ...report.latex import posterior_table
+
+        (folder / "summary.md").write_text(fit_markdown(summary))
+        (folder / "summary.tex").write_text(posterior_table(summary))
+        samples = result.chain.samples
+        np.savez(folder / "samples.npz", names=np.array(result.model.names), samples=samples,
+                 k=samples[:, result.model.index_k], log_prob=result.chain.log_prob)
+    summary["timings"] = timer.as_dict()
     write_json(folder / "summary.json", summary)
-    (folder / "summary.md").write_text(fit_markdown(summary))
-    (folder / "summary.tex").write_text(posterior_table(summary))
-    names = result.model.names
+
+
+def _draw_figures(folder, config, data, result):
+    from ...report.check_figures import crosscheck_figure
+    from ...report.fit_figures import corner_figure, offsets_figure, relation_figure
+
+    summary = result.summary
     samples = result.chain.samples
-    np.savez(folder / "samples.npz", names=np.array(names), samples=samples,
-             k=samples[:, result.model.index_k], log_prob=result.chain.log_prob)
-    corner_figure(samples, names, folder / "corner.png")
+    corner_figure(samples, result.model.names, folder / "corner.png")
     relation_figure(data.catalog, summary, config.model, folder / "relation.png")
     offsets = {name[len("delta["):-1]: row["median"] for name, row in summary["parameters"].items()
                if name.startswith("delta[")}
