@@ -22,6 +22,7 @@ import tempfile
 import time
 from pathlib import Path
 
+from bench_table import emit, row
 from cosmogrow.campaigns.runner import prepare_campaign, run_campaign
 from cosmogrow.campaigns.config import read_campaign_config
 from cosmogrow.campaigns.executors import ProcessExecutor, available_cores
@@ -110,12 +111,14 @@ def main():
     targets = {"fast >= 50 /s": ("fast_per_s_2w", 50.0), "MCMC >= 2 /s": ("mcmc_per_s_2w", 2.0),
                "fast 2 workers >= 1.7x": ("fast_speedup_2_vs_1", 1.7),
                "MCMC 2 workers >= 1.7x": ("mcmc_speedup_2_vs_1", 1.7)}
-    for name, row in report.items():
+    rows = []
+    for name, values in report.items():
         for label, (key, target) in targets.items():
-            if key in row:
-                print(f"  {name:9s} {label:24s} measured {row[key]:7.2f}  "
-                      f"{'met' if row[key] >= target else 'NOT met'}")
+            if key in values:
+                rows.append(row(f"campaign, {name} design, N = {2 * N_PER_SAMPLE} per mock: {label.split(' >=')[0]}",
+                                f"≥ {target:g}", f"{values[key]:.2f}", values[key] >= target))
     print(json.dumps(report))
+    emit(rows)
 
 
 if __name__ == "__main__":
