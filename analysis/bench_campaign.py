@@ -32,12 +32,13 @@ N_PER_SAMPLE = 250
 CUT = 8.3
 
 
-def write_design(folder, cut):
-    """A design of 2 x 250 objects drawn by the simulator, written as catalogues + run.toml."""
+def write_design(folder, cut, level=CUT):
+    """A design of 2 x 250 objects drawn by the simulator, written as catalogues + run.toml
+    (with `cut`, the high-z sample is cut at observed log M_BH >= `level`)."""
     high = {"name": "high", "n": N_PER_SAMPLE, "z_range": [0.8, 1.2], "method": "dynamical",
             "log_mstar_min": 10.5, "log_mstar_max": 12.0}
     if cut:
-        high["selection"] = {"kind": "mass_cut", "log_mbh_min": CUT, "on": "observed"}
+        high["selection"] = {"kind": "mass_cut", "log_mbh_min": level, "on": "observed"}
     config = {"seed": 1, "truth": {"k": 1.0, "alpha": 8.5, "sigma_int": 0.3},
               "sample": [{"name": "local", "n": N_PER_SAMPLE, "z_range": [0.01, 0.05],
                           "method": "dynamical", "log_mstar_min": 10.5, "log_mstar_max": 12.0},
@@ -48,7 +49,7 @@ def write_design(folder, cut):
         catalog.subset(catalog.sample == name).to_dataframe().to_csv(folder / f"{name}.csv", index=False)
         lines.append(f'[[sample]]\nname = "{name}"\npath = "{name}.csv"')
         if cut and name == "high":
-            lines.append(f'selection = {{ kind = "mass_cut", log_mbh_min = {CUT}, on = "observed" }}')
+            lines.append(f'selection = {{ kind = "mass_cut", log_mbh_min = {level}, on = "observed" }}')
     (folder / "run.toml").write_text("\n".join(lines) + "\n")
     return folder / "run.toml"
 

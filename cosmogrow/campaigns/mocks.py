@@ -19,6 +19,7 @@ from ..config import load_toml
 from ..errors import ConfigError
 from ..inference.laplace import gradient, laplace, start_walkers
 from ..inference.fit import FitData, build_model
+from ..inference.importance import importance_posterior
 from ..outputs import sha256_file
 from ..inference.mcmc import default_walkers, run_ensemble
 from ..seeding import make_rng
@@ -150,18 +151,21 @@ def fit_replica(config, data, catalog, *, mode="fast", selection_aware=True, see
     config : config.RunConfig, the run's model, priors and sampler options
     data : fit.FitData, the design (its selections and cosmology are used; its rows are not)
     catalog : catalog.Catalog, the mock
-    mode : "fast" (MAP + Laplace Gaussian) or "mcmc" (emcee ensemble as in `cosmogrow fit`)
+    mode : "fast" (MAP + Laplace; importance-sampled to the exact posterior when a selection is
+        modelled, a short chain when that fails: see `fast_estimate`) or "mcmc" (emcee ensemble
+        as in `cosmogrow fit`)
     selection_aware : bool, model the declared selection (False: the plain likelihood)
     seed : int or SeedSequence, seeds the walkers, the sampler and the draws
     max_steps : int, step cap of the MCMC (mode "mcmc"); the run's autocorr_factor still applies
     n_draws : int, number of posterior draws of k to return (for simulation-based calibration):
-        Laplace Gaussian draws in fast mode, evenly spaced chain draws in MCMC mode
+        Laplace Gaussian draws, importance-weighted resamples, or evenly spaced chain draws
 
     Returns
     -------
-    dict: k (MAP in fast mode, posterior median in MCMC mode), k_std, interval68, interval95
-    (lists [low, high]), converged (bool), tau_max and n_steps (NaN and 0 in fast mode), and
-    k_draws (ndarray) when n_draws > 0.
+    dict: k (MAP on the "laplace" path, else the posterior median), k_std, interval68, interval95
+    (lists [low, high]), converged (bool), tau_max and n_steps (NaN and 0 without a chain), path
+    (which estimator ran: "laplace", "importance", "short chain" or "mcmc"), ess_fraction (of the
+    importance weights, NaN otherwise) and k_draws (ndarray) when n_draws > 0.
     """
     if mode not in MODES:
         raise ConfigError(f"estimator.mode: expected one of {', '.join(MODES)}, got {mode!r}")
@@ -170,15 +174,10 @@ def fit_replica(config, data, catalog, *, mode="fast", selection_aware=True, see
     approx = laplace(model)
     i = model.index_k
     if mode == "fast":
-        k_map, k_std = float(approx.theta[i]), float(approx.std[i])
-        out = {"k": k_map, "k_std": k_std,
-               "interval68": [k_map - _Z68 * k_std, k_map + _Z68 * k_std],
-               "interval95": [k_map - _Z95 * k_std, k_map + _Z95 * k_std],
-               "converged": laplace_is_sound(model, approx),
-               "tau_max": float("nan"), "n_steps": 0}
-        if n_draws:
-            out["k_draws"] = make_rng(draw_seed).normal(k_map, k_std, int(n_draws))
-        return out
+        out = fast_estimate(model, approx, make_rng(walker_seed), make_rng(draw_seed), n_draws)
+        if out is not None:
+            return out
+    path = "mcmc" if mode == "mcmc" else "short chain"
     n_walkers = default_walkers(model.ndim, config.sampler.walkers)
     start = start_walkers(model, approx, n_walkers, make_rng(walker_seed))
     chain = run_ensemble(model.log_prob, start, max_steps=int(max_steps),
@@ -189,10 +188,42 @@ def fit_replica(config, data, catalog, *, mode="fast", selection_aware=True, see
     out = {"k": float(q[2]), "k_std": float(np.std(k, ddof=1)),
            "interval68": [float(q[1]), float(q[3])], "interval95": [float(q[0]), float(q[4])],
            "converged": bool(chain.converged), "tau_max": float(chain.tau_max),
-           "n_steps": int(chain.n_steps)}
+           "n_steps": int(chain.n_steps), "path": path, "ess_fraction": float("nan")}
     if n_draws:
         # evenly spaced over the (step-major) flat chain, i.e. spread over the whole run
         out["k_draws"] = k[np.linspace(0, len(k) - 1, int(n_draws)).round().astype(int)]
+    return out
+
+
+def fast_estimate(model, approx, rng, draw_rng, n_draws=0):
+    """The fast estimator's result, or None when it needs a short chain instead.
+
+    Without a modelled selection the posterior is close to Gaussian: MAP and Laplace interval
+    (path "laplace"). With one, the Laplace approximation proposes and importance sampling
+    corrects it (path "importance": weighted posterior median and quantiles of k); when the
+    importance weights degenerate (inference.importance.MIN_ESS_FRACTION), None.
+    """
+    i = model.index_k
+    if model.selection is None:
+        k_map, k_std = float(approx.theta[i]), float(approx.std[i])
+        out = {"k": k_map, "k_std": k_std,
+               "interval68": [k_map - _Z68 * k_std, k_map + _Z68 * k_std],
+               "interval95": [k_map - _Z95 * k_std, k_map + _Z95 * k_std],
+               "converged": laplace_is_sound(model, approx), "tau_max": float("nan"), "n_steps": 0,
+               "path": "laplace", "ess_fraction": float("nan")}
+        if n_draws:
+            out["k_draws"] = draw_rng.normal(k_map, k_std, int(n_draws))
+        return out
+    weighted = importance_posterior(model, approx, rng)
+    if not weighted.adequate:
+        return None
+    q = weighted.quantiles(i)
+    out = {"k": float(q[2]), "k_std": weighted.std(i), "interval68": [float(q[1]), float(q[3])],
+           "interval95": [float(q[0]), float(q[4])], "converged": laplace_is_sound(model, approx),
+           "tau_max": float("nan"), "n_steps": 0, "path": "importance",
+           "ess_fraction": weighted.ess_fraction}
+    if n_draws:
+        out["k_draws"] = weighted.resample(i, int(n_draws), draw_rng)
     return out
 
 
