@@ -20,6 +20,8 @@ p-value is tabulated only within [0.001, 0.25] and capped there; the range is un
 lies inside.
 """
 
+import os
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
 
 import numpy as np
@@ -38,6 +40,8 @@ MIN_OBJECTS_ES = 8
 #: Any test needs at least this many objects per sample.
 MIN_OBJECTS = 3
 MAX_GRID = 20001
+#: From this many objects in a comparison, grid points are compared in two threads.
+THREADED_MIN_OBJECTS = 50_000
 _KEYS = ("reference", "k_min", "k_max", "k_step", "statistic")
 
 
@@ -183,13 +187,22 @@ def _scan(ref_values, ref_x, values, x, shifts):
     """{test: (statistic array, p array)} over the shifts; NaN where a test cannot run.
 
     One merged sort per shift gives all three statistics (twosample module); p-values are computed
-    for the whole grid at once.
+    for the whole grid at once. Large samples use two threads.
     """
     n_ref, n_other = len(ref_values), len(values)
     pair = PairComparison(n_ref, n_other)
     with_es = min(n_ref, n_other) >= MIN_OBJECTS_ES
-    rows = np.array([pair.statistics(ref_values + shift * ref_x, values + shift * x, with_es)
-                     for shift in shifts], dtype=float).reshape(len(shifts), 4)
+
+    def compare(shift):
+        return pair.statistics(ref_values + shift * ref_x, values + shift * x, with_es)
+
+    if n_ref + n_other >= THREADED_MIN_OBJECTS and len(os.sched_getaffinity(0)) > 1:
+        # sorting and the ufuncs release the GIL: grid points in two threads halve the wall time
+        with ThreadPoolExecutor(max_workers=2) as pool:
+            rows = list(pool.map(compare, shifts))
+    else:
+        rows = [compare(shift) for shift in shifts]
+    rows = np.array(rows, dtype=float).reshape(len(shifts), 4)
     exact_data = ((ref_values + shift * ref_x, values + shift * x) for shift in shifts)
     out = {"ks": (rows[:, 0], pair.ks_pvalues(rows[:, 0], exact_data)),
            "anderson_darling": (rows[:, 1], ad_pvalues(rows[:, 1])),
