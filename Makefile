@@ -34,7 +34,8 @@ bench: install
 	BENCH_ROWS=.bench_rows.jsonl $(BIN)/python analysis/bench_fit.py --max-n 100000
 	BENCH_ROWS=.bench_rows.jsonl $(BIN)/python analysis/bench_selection.py
 	BENCH_ROWS=.bench_rows.jsonl $(BIN)/python analysis/bench_campaign.py
-	BENCH_ROWS=.bench_rows.jsonl $(BIN)/python analysis/calib_hardcut.py --realisations 300
+	BENCH_ROWS=.bench_rows.jsonl $(BIN)/python analysis/calib_hardcut.py --realisations 300 --mode fast
+	BENCH_ROWS=.bench_rows.jsonl $(BIN)/python analysis/calib_hardcut.py --realisations 300 --mode importance
 	@echo; $(BIN)/python analysis/bench_table.py .bench_rows.jsonl; rm -f .bench_rows.jsonl
 
 demo-data: install

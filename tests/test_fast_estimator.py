@@ -1,5 +1,6 @@
 """The fast estimator where a selection truncates hard: importance sampling of the Laplace
-approximation recovers the exact posterior; on a hard-cut design the campaign is calibrated."""
+approximation recovers the exact posterior (an analytic skewed posterior; MCMC on hard-cut mocks),
+and campaigns record which path each mock took."""
 
 import sys
 from pathlib import Path
@@ -9,10 +10,13 @@ import pytest
 from scipy import stats
 
 from cosmogrow.campaigns.config import read_campaign_config
-from cosmogrow.campaigns.executors import ProcessExecutor
+from cosmogrow.campaigns.executors import SerialExecutor
+from cosmogrow.campaigns.mocks import design_truth, draw_replica, fit_replica
 from cosmogrow.campaigns.runner import prepare_campaign, run_campaign
+from cosmogrow.config import read_run_config
+from cosmogrow.inference.fit import build_model, load_data
 from cosmogrow.inference.importance import importance_posterior
-from cosmogrow.inference.laplace import LaplaceResult
+from cosmogrow.inference.laplace import LaplaceResult, laplace
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "analysis"))
 from bench_campaign import write_design  # noqa: E402  (the benchmark's design, N = 500)
@@ -60,31 +64,40 @@ def test_degenerate_weights_are_flagged_for_a_short_chain():
     assert not importance_posterior(target, wrong, np.random.default_rng(1), n_draws=512).adequate
 
 
-def band(p, n, width=3.0):
-    # binomial standard error of a coverage fraction (common practice)
-    half = width * np.sqrt(p * (1 - p) / n)
-    return p - half, p + half
+@pytest.fixture(scope="module")
+def hard_cut_design(tmp_path_factory):
+    """analysis/bench_campaign.py's design (2 x 250 objects) cut hard at observed log M_BH >= 8.4."""
+    return write_design(tmp_path_factory.mktemp("hardcut"), True, 8.4)
+
+
+def test_importance_mode_records_its_path_in_the_campaign_rows(hard_cut_design, tmp_path):
+    path = tmp_path / "campaign.toml"
+    path.write_text(f'seed = 3\ndesign = "{hard_cut_design}"\n[grid]\nk = [3.0]\nrealisations = 2\n'
+                    '[estimator]\nmode = "importance"\ncompare_plain = true\n')
+    table = run_campaign(prepare_campaign(read_campaign_config(path)), tmp_path / "out",
+                         SerialExecutor()).results
+    aware, plain = table[table["estimator"] == "selection-aware"], table[table["estimator"] == "plain"]
+    assert set(aware["path"]) <= {"importance", "short chain"} and set(plain["path"]) == {"laplace"}
+    assert aware["ess_fraction"].between(0.2, 1.0).all() and plain["ess_fraction"].isna().all()
+    assert (aware["lo95"] < aware["k_estimate"]).all() and (aware["k_estimate"] < aware["hi95"]).all()
 
 
 @pytest.mark.slow
-def test_fast_estimator_is_calibrated_on_a_hard_cut(tmp_path):
-    """200 mocks at k = 0 and k = 3 (the measurement in the README used 300 per k at k = 0..3).
-    The bias's standard error is sigma_k / sqrt(200) = 0.07 sigma_k, so |bias| < 0.2 is ~3 standard
-    errors; MAP + Laplace alone failed it at k = 3 (bias -0.35 sigma_k over 300 mocks)."""
-    design = write_design(tmp_path, True, 8.4)
-    path = tmp_path / "campaign.toml"
-    path.write_text(f'seed = 21\ndesign = "{design}"\n[grid]\nk = [0.0, 3.0]\nrealisations = 200\n'
-                    '[estimator]\nmode = "fast"\n')
-    table = run_campaign(prepare_campaign(read_campaign_config(path)), tmp_path / "out",
-                         ProcessExecutor(2)).results
-    assert set(table["path"]) <= {"importance", "short chain"}
-    assert (table["path"] == "importance").mean() > 0.9
-    for k in (0.0, 3.0):
-        mine = table[table["k_true"] == k]
-        n = len(mine)
-        assert n == 200 and mine["error"].eq("").all()
-        for level, p in (("68", 0.68), ("95", 0.95)):
-            lo, hi = band(p, n)
-            assert lo <= mine[f"covered{level}"].mean() <= hi, (k, level)
-        bias = np.mean(mine["k_estimate"] - k) / np.median(mine["k_std"])
-        assert abs(bias) < 0.2, (k, bias)
+def test_importance_mode_matches_mcmc_on_a_hard_cut(hard_cut_design):
+    """Per mock, the importance-sampled fast fit reproduces the MCMC posterior of k: median within
+    0.15 posterior sigma, interval widths within 12 % (measured: 0.01-0.04 sigma and < 5 %); the
+    MAP + Laplace it corrects is skewed away from it by the truncation."""
+    config = read_run_config(hard_cut_design)
+    data = load_data(config)
+    model = build_model(config, data)
+    truth = design_truth(model, laplace(model).theta, 3.0)
+    for r in range(3):
+        seed = np.random.SeedSequence(5, spawn_key=(r,))
+        catalog = draw_replica(config, data, truth, seed)
+        fast = fit_replica(config, data, catalog, mode="importance", seed=seed)
+        mcmc = fit_replica(config, data, catalog, mode="mcmc", seed=seed, max_steps=4000)
+        assert fast["path"] == "importance" and mcmc["converged"]
+        assert abs(fast["k"] - mcmc["k"]) < 0.15 * mcmc["k_std"], r
+        for level in ("interval68", "interval95"):
+            ratio = np.diff(fast[level])[0] / np.diff(mcmc[level])[0]
+            assert abs(ratio - 1) < 0.12, (r, level, ratio)

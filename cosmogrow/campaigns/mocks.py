@@ -25,7 +25,9 @@ from ..inference.mcmc import default_walkers, run_ensemble
 from ..seeding import make_rng
 from ..simulation.plan import parse_sim_config
 
+#: Estimators of the null tests and the challenge; campaigns also offer "importance".
 MODES = ("fast", "mcmc")
+CAMPAIGN_MODES = ("fast", "importance", "mcmc")
 #: Step cap of one MCMC fit in a campaign (the run configuration's cap is for the real data, where
 #: one fit may take minutes; a campaign fits thousands). A capped chain is flagged converged=False.
 CAMPAIGN_MAX_STEPS = 3000
@@ -151,9 +153,9 @@ def fit_replica(config, data, catalog, *, mode="fast", selection_aware=True, see
     config : config.RunConfig, the run's model, priors and sampler options
     data : fit.FitData, the design (its selections and cosmology are used; its rows are not)
     catalog : catalog.Catalog, the mock
-    mode : "fast" (MAP + Laplace; importance-sampled to the exact posterior when a selection is
-        modelled, a short chain when that fails: see `fast_estimate`) or "mcmc" (emcee ensemble
-        as in `cosmogrow fit`)
+    mode : "fast" (MAP + Laplace), "importance" (MAP + Laplace importance-sampled to the exact
+        posterior when a selection is modelled, a short chain when that fails: see
+        `fast_estimate`) or "mcmc" (emcee ensemble as in `cosmogrow fit`)
     selection_aware : bool, model the declared selection (False: the plain likelihood)
     seed : int or SeedSequence, seeds the walkers, the sampler and the draws
     max_steps : int, step cap of the MCMC (mode "mcmc"); the run's autocorr_factor still applies
@@ -167,14 +169,15 @@ def fit_replica(config, data, catalog, *, mode="fast", selection_aware=True, see
     (which estimator ran: "laplace", "importance", "short chain" or "mcmc"), ess_fraction (of the
     importance weights, NaN otherwise) and k_draws (ndarray) when n_draws > 0.
     """
-    if mode not in MODES:
-        raise ConfigError(f"estimator.mode: expected one of {', '.join(MODES)}, got {mode!r}")
+    if mode not in CAMPAIGN_MODES:
+        raise ConfigError(f"estimator.mode: expected one of {', '.join(CAMPAIGN_MODES)}, got {mode!r}")
     model = build_model(config, data, selection_aware=selection_aware, catalog=catalog)
     walker_seed, sampler_seed, draw_seed = _children(seed, 3)
     approx = laplace(model)
     i = model.index_k
-    if mode == "fast":
-        out = fast_estimate(model, approx, make_rng(walker_seed), make_rng(draw_seed), n_draws)
+    if mode != "mcmc":
+        out = fast_estimate(model, approx, make_rng(walker_seed), make_rng(draw_seed), n_draws,
+                            correct=mode == "importance")
         if out is not None:
             return out
     path = "mcmc" if mode == "mcmc" else "short chain"
@@ -195,16 +198,16 @@ def fit_replica(config, data, catalog, *, mode="fast", selection_aware=True, see
     return out
 
 
-def fast_estimate(model, approx, rng, draw_rng, n_draws=0):
+def fast_estimate(model, approx, rng, draw_rng, n_draws=0, correct=False):
     """The fast estimator's result, or None when it needs a short chain instead.
 
-    Without a modelled selection the posterior is close to Gaussian: MAP and Laplace interval
-    (path "laplace"). With one, the Laplace approximation proposes and importance sampling
-    corrects it (path "importance": weighted posterior median and quantiles of k); when the
-    importance weights degenerate (inference.importance.MIN_ESS_FRACTION), None.
+    MAP and Laplace interval (path "laplace"), unless `correct` and a selection is modelled: then
+    the Laplace approximation proposes and importance sampling corrects it to the exact posterior
+    (path "importance": weighted posterior median and quantiles of k, as MCMC mode reports them);
+    None when the importance weights degenerate (inference.importance.MIN_ESS_FRACTION).
     """
     i = model.index_k
-    if model.selection is None:
+    if not correct or model.selection is None:
         k_map, k_std = float(approx.theta[i]), float(approx.std[i])
         out = {"k": k_map, "k_std": k_std,
                "interval68": [k_map - _Z68 * k_std, k_map + _Z68 * k_std],
