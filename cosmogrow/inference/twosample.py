@@ -79,7 +79,8 @@ class PairComparison:
         for counts, size in ((ca, self.n_a), (cb, self.n_b)):
             step = np.diff(counts, prepend=0.0)
             m_mid = counts - step / 2.0
-            total += np.dot(weight, (n * m_mid - b_mid * size) ** 2) / size
+            with np.errstate(invalid="ignore"):  # NaN weight (one value only) gives NaN
+                total += np.dot(weight, (n * m_mid - b_mid * size) ** 2) / size
         a2kn = total * (n - 1.0) / n
         return (a2kn - 1.0) / self._ad_sigma
 
