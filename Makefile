@@ -27,11 +27,17 @@ demo: install
 test: install-test browser
 	$(BIN)/python -m pytest -q -ra
 
+# Each benchmark prints its own rows; the last line prints them all as one table (the README's).
 bench: install
-	$(BIN)/python analysis/bench_fit.py
-	$(BIN)/python analysis/bench_selection.py
-	$(BIN)/python analysis/bench_campaign.py
+	@rm -f .bench_rows.jsonl
+	BENCH_ROWS=.bench_rows.jsonl $(BIN)/python analysis/bench_command.py
+	BENCH_ROWS=.bench_rows.jsonl $(BIN)/python analysis/bench_fit.py --max-n 100000
+	BENCH_ROWS=.bench_rows.jsonl $(BIN)/python analysis/bench_selection.py
+	BENCH_ROWS=.bench_rows.jsonl $(BIN)/python analysis/bench_campaign.py
+	BENCH_ROWS=.bench_rows.jsonl $(BIN)/python analysis/calib_hardcut.py --realisations 300 --mode fast
+	BENCH_ROWS=.bench_rows.jsonl $(BIN)/python analysis/calib_hardcut.py --realisations 300 --mode importance
 	$(BIN)/python analysis/bench_verdicts.py
+	@echo; $(BIN)/python analysis/bench_table.py .bench_rows.jsonl; rm -f .bench_rows.jsonl
 
 demo-data: install
 	$(BIN)/python analysis/make_demo_data.py

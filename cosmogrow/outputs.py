@@ -6,6 +6,7 @@ import json
 import os
 import shutil
 import tempfile
+import time
 from pathlib import Path
 
 import numpy as np
@@ -179,3 +180,29 @@ def package_versions():
         except metadata.PackageNotFoundError:
             versions[name] = None
     return versions
+
+
+class StageTimes:
+    """Wall-clock seconds spent in the named stages of a command (summary.json `timings`).
+
+    A stage entered twice accumulates. `as_dict` lists the stages in the order first entered and
+    their total.
+    """
+
+    def __init__(self):
+        self.seconds = {}
+
+    @contextlib.contextmanager
+    def stage(self, name: str):
+        """Time the enclosed block as stage `name` (seconds, wall clock)."""
+        start = time.perf_counter()
+        try:
+            yield
+        finally:
+            self.seconds[name] = self.seconds.get(name, 0.0) + time.perf_counter() - start
+
+    def as_dict(self) -> dict:
+        """{stage: seconds} rounded to milliseconds, with "total" (the sum of the stages)."""
+        out = {name: round(seconds, 3) for name, seconds in self.seconds.items()}
+        out["total"] = round(sum(self.seconds.values()), 3)
+        return out

@@ -364,7 +364,7 @@ def test_design_truth_names_every_parameter():
     ('design = "run.toml"\n[grid]\nrealisations = -1\n', "grid.realisations: expected an integer >= 0"),
     ('design = "run.toml"\n[grid]\nrealisations = 0\n', "grid.realisations: expected >= 1"),
     ('design = "run.toml"\n[grid]\nsteps = 3\n', "unknown key 'grid.steps'"),
-    ('design = "run.toml"\n[estimator]\nmode = "slow"\n', "estimator.mode: expected one of fast, mcmc"),
+    ('design = "run.toml"\n[estimator]\nmode = "slow"\n', "estimator.mode: expected one of fast, importance, mcmc"),
     ('design = "run.toml"\n[estimator]\ncompare_plain = "yes"\n', "estimator.compare_plain"),
     ('design = "run.toml"\n[estimator]\nmax_steps = 10\n', "estimator.max_steps: expected an integer >= 100"),
     ('design = "run.toml"\n[sbc]\nn = 10\nprior = [4, 1]\n', r"sbc.prior: expected \[low, high\]"),

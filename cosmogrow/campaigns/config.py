@@ -10,7 +10,8 @@ A campaign configuration looks like::
     k = [-1, 0, 1, 2, 3, 4]        # injected k (default)
     realisations = 200             # mocks per injected k (default)
     [estimator]
-    mode = "fast"                  # "fast" (MAP + Laplace) or "mcmc" (as `cosmogrow fit`)
+    mode = "fast"                  # "fast" (MAP + Laplace), "importance" (its importance-sampled
+                                   # correction to the exact posterior) or "mcmc" (as `cosmogrow fit`)
     compare_plain = false          # also fit every mock with the plain likelihood
     max_steps = 3000               # MCMC step cap per mock (campaign default, see replicas)
     [truth]                        # optional overrides of the design's truth (not k)
@@ -36,7 +37,7 @@ from pathlib import Path
 
 from ..config import load_toml
 from ..errors import ConfigError
-from .mocks import CAMPAIGN_MAX_STEPS, MODES
+from .mocks import CAMPAIGN_MAX_STEPS, CAMPAIGN_MODES
 
 DEFAULT_GRID = (-1.0, 0.0, 1.0, 2.0, 3.0, 4.0)
 DEFAULT_REALISATIONS = 200
@@ -127,8 +128,9 @@ def parse_campaign_config(raw, *, base_dir=Path("."), source="<campaign>"):
     estimator = raw.get("estimator", {})
     _check_keys(estimator, _ESTIMATOR_KEYS, "estimator.", source)
     mode = estimator.get("mode", "fast")
-    if mode not in MODES:
-        raise ConfigError(f"{source}: estimator.mode: expected one of {', '.join(MODES)}, got {mode!r}")
+    if mode not in CAMPAIGN_MODES:
+        raise ConfigError(f"{source}: estimator.mode: expected one of {', '.join(CAMPAIGN_MODES)}, "
+                          f"got {mode!r}")
     compare_plain = estimator.get("compare_plain", False)
     if not isinstance(compare_plain, bool):
         raise ConfigError(f"{source}: estimator.compare_plain: expected true or false, "

@@ -10,6 +10,7 @@ and the number of workers change nothing but the speed.
 import multiprocessing
 import os
 import pickle
+import signal
 import threading
 import time
 from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
@@ -44,18 +45,42 @@ class SerialExecutor:
         pass
 
 
-def _install_context(context_bytes):
+def _install_context(parent_pid, context_bytes):
     # Runs in a freshly spawned worker before numpy is imported (this module does not import it
     # and the context arrives pickled), so the thread limits take effect.
+    die_with_parent(parent_pid)
     for name, value in SINGLE_THREAD_ENV.items():
         os.environ.setdefault(name, value)
     _WORKER_CONTEXT["context"] = pickle.loads(context_bytes)
-    threading.Thread(target=_exit_with_parent, args=(os.getppid(),), daemon=True).start()
+
+
+#: prctl option asking Linux to signal this process when its parent dies (linux/prctl.h).
+_PR_SET_PDEATHSIG = 1
+
+
+def die_with_parent(parent_pid: int) -> None:
+    """End this process whenever `parent_pid`, the process that started it, dies.
+
+    A pool's workers otherwise wait for work forever once the campaign process is killed (SIGKILL
+    gives it no chance to stop them). On Linux the kernel is asked to send SIGKILL at the parent's
+    death (prctl PR_SET_PDEATHSIG); a parent that died before that request, e.g. during the pool's
+    start-up, is caught by comparing the current parent with `parent_pid`, which the parent
+    recorded itself (a worker's own `os.getppid()` may already be its adoptive init). A watcher
+    thread repeats that comparison every second, for systems without prctl.
+    """
+    try:
+        import ctypes
+
+        libc = ctypes.CDLL(None, use_errno=True)
+        libc.prctl(_PR_SET_PDEATHSIG, signal.SIGKILL, 0, 0, 0)
+    except (OSError, AttributeError):  # pragma: no cover - not Linux: the watcher still works
+        pass
+    if os.getppid() != parent_pid:
+        os._exit(1)
+    threading.Thread(target=_exit_with_parent, args=(parent_pid,), daemon=True).start()
 
 
 def _exit_with_parent(parent_pid, every_s=1.0):
-    """End this worker when the campaign process is gone (e.g. killed with SIGKILL): a pool's
-    workers otherwise wait for work forever."""
     while os.getppid() == parent_pid:
         time.sleep(every_s)
     os._exit(1)
@@ -86,7 +111,7 @@ class ProcessExecutor:
         self._pool = ProcessPoolExecutor(max_workers=self.workers,
                                          mp_context=multiprocessing.get_context("spawn"),
                                          initializer=_install_context,
-                                         initargs=(pickle.dumps(context),))
+                                         initargs=(os.getpid(), pickle.dumps(context)))
         tasks = iter(tasks)
         pending = set()
         try:

@@ -17,7 +17,7 @@ from ..simulation import population as simulate
 from ..config import load_toml
 from ..errors import ConfigError
 from ..inference.fit import FitData, build_model
-from ..inference.k_estimate import CAMPAIGN_MAX_STEPS, MODES, estimate_k
+from ..inference.k_estimate import CAMPAIGN_MAX_STEPS, CAMPAIGN_MODES, MODES, estimate_k
 from ..outputs import sha256_file
 from ..data.catalog import Catalog
 from ..model.truth import Truth
@@ -114,19 +114,24 @@ def fit_replica(config, data: FitData, catalog: Catalog, *, mode: str = "fast", 
     config : config.RunConfig, the run's model, priors and sampler options
     data : fit.FitData, the design (its selections and cosmology are used; its rows are not)
     catalog : catalog.Catalog, the mock
-    mode : "fast" (MAP + Laplace Gaussian) or "mcmc" (emcee ensemble as in `cosmogrow fit`)
+    mode : "fast" (MAP + Laplace), "importance" (MAP + Laplace importance-sampled to the exact
+        posterior when a selection is modelled, a short chain when that fails: see
+        `inference.k_estimate.estimate_k`) or "mcmc" (emcee ensemble as in `cosmogrow fit`)
     selection_aware : bool, model the declared selection (False: the plain likelihood)
     seed : int or SeedSequence, seeds the walkers, the sampler and the draws
     max_steps : int, step cap of the MCMC (mode "mcmc"); the run's autocorr_factor still applies
-    n_draws : int, number of posterior draws of k to return (for simulation-based calibration)
+    n_draws : int, number of posterior draws of k to return (for simulation-based calibration):
+        Laplace Gaussian draws, importance-weighted resamples, or evenly spaced chain draws
 
     Returns
     -------
-    dict: `inference.k_estimate.KEstimate.as_dict` (k, k_std, interval68, interval95, converged,
-    tau_max, n_steps, and k_draws when n_draws > 0).
+    dict: `inference.k_estimate.KEstimate.as_dict`: k (MAP on the "laplace" path, else the
+    posterior median), k_std, interval68, interval95 (lists [low, high]), converged (bool), tau_max and n_steps (NaN and 0 without a chain), path
+    (which estimator ran: "laplace", "importance", "short chain" or "mcmc"), ess_fraction (of the
+    importance weights, NaN otherwise) and k_draws (ndarray) when n_draws > 0.
     """
-    if mode not in MODES:
-        raise ConfigError(f"estimator.mode: expected one of {', '.join(MODES)}, got {mode!r}")
+    if mode not in CAMPAIGN_MODES:
+        raise ConfigError(f"estimator.mode: expected one of {', '.join(CAMPAIGN_MODES)}, got {mode!r}")
     model = build_model(config, data, selection_aware=selection_aware, catalog=catalog)
     return estimate_k(model, mode=mode, sampler=config.sampler, seed=seed, max_steps=max_steps,
                       n_draws=n_draws).as_dict()

@@ -40,7 +40,8 @@ SBC_INDEX = 1_000_000
 AWARE, PLAIN = "selection-aware", "plain"
 COLUMNS = ("kind", "grid_index", "realisation", "estimator", "k_true", "k_estimate", "k_std",
            "lo68", "hi68", "lo95", "hi95", "covered68", "covered95", "converged", "tau_max",
-           "n_steps", "sbc_rank", "n_draws", "n_objects", "seed_entropy", "spawn_key", "error")
+           "n_steps", "path", "ess_fraction", "sbc_rank", "n_draws", "n_objects", "seed_entropy",
+           "spawn_key", "error")
 _KIND_ORDER = {"grid": 0, "sbc": 1}
 _FIT_FAILURES = (CosmogrowError, ValueError, ArithmeticError, np.linalg.LinAlgError)
 
@@ -152,7 +153,8 @@ def run_task(context, task):
                      "lo68": lo68, "hi68": hi68, "lo95": lo95, "hi95": hi95,
                      "covered68": bool(lo68 <= k_true <= hi68),
                      "covered95": bool(lo95 <= k_true <= hi95), "converged": fit["converged"],
-                     "tau_max": fit["tau_max"], "n_steps": fit["n_steps"],
+                     "tau_max": fit["tau_max"], "n_steps": fit["n_steps"], "path": fit["path"],
+                     "ess_fraction": fit["ess_fraction"],
                      "sbc_rank": calibration.sbc_rank(k_true, fit["k_draws"]) if sbc else -1,
                      "n_draws": spec.sbc.draws if sbc else 0, "n_objects": len(catalog),
                      "error": ""})
@@ -163,7 +165,8 @@ def _failed_row(base, estimator, exc, n_objects=0):
     nan = float("nan")
     return {**base, "estimator": estimator, "k_estimate": nan, "k_std": nan, "lo68": nan,
             "hi68": nan, "lo95": nan, "hi95": nan, "covered68": False, "covered95": False,
-            "converged": False, "tau_max": nan, "n_steps": 0, "sbc_rank": -1, "n_draws": 0,
+            "converged": False, "tau_max": nan, "n_steps": 0, "path": "failed", "ess_fraction": nan,
+            "sbc_rank": -1, "n_draws": 0,
             "n_objects": n_objects, "error": f"{type(exc).__name__}: {exc}"}
 
 

@@ -20,8 +20,21 @@ EXIT_OK = 0
 EXIT_BAD_INPUT = 2
 EXIT_NOT_CONVERGED = 3
 
-COMMANDS = ("init", "fit", "simulate", "inject", "nulltest", "challenge", "forecast", "budget", "remnants",
-            "report", "demo")
+#: The subcommands and their one-line summaries (`cosmogrow --help` lists these without importing
+#: any command module; each module's own parser repeats its line, tests/test_cli_speed.py checks).
+COMMANDS = {
+    "init": "write a commented run configuration for catalogues",
+    "fit": "fit k to catalogues of black-hole and host masses",
+    "simulate": "simulate catalogues of a population, with selection",
+    "inject": "injection-recovery campaign: calibrate the k measurement of a design",
+    "nulltest": "null tests of a k measurement",
+    "challenge": "test a claimed k against mocks of the data's own design",
+    "forecast": "predict the precision of k for planned observations",
+    "budget": "density today of coupled stellar-remnant black holes against dark energy",
+    "remnants": "birth masses of stellar-mass black holes under coupled growth",
+    "report": "collect results folders into one self-contained HTML page",
+    "demo": "run every stage on the bundled demo data",
+}
 
 
 class OneLineParser(argparse.ArgumentParser):
@@ -32,13 +45,18 @@ class OneLineParser(argparse.ArgumentParser):
 
 
 def build_parser(only=None):
-    """The argument parser; with `only`, just that subcommand is imported (a faster start)."""
+    """The argument parser: with `only`, that subcommand's full parser (only its module is
+    imported); without, every subcommand's summary line, for the top-level help (no module imported)."""
     parser = OneLineParser(
         prog="cosmogrow",
         description="Measure and calibrate coupled black-hole growth, M_BH ∝ a^k.")
     parser.add_argument("--version", action="version", version=f"cosmogrow {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
-    for name in COMMANDS if only is None else (only,):
+    if only is None:
+        for name, summary in COMMANDS.items():
+            sub.add_parser(name, help=summary)
+        return parser
+    for name in (only,):
         try:
             module = importlib.import_module(f".commands.{name}", __package__)
         except ModuleNotFoundError as exc:

@@ -17,7 +17,7 @@ from .k_estimate import sample_posterior
 from .laplace import find_map, laplace
 from ..model.hostprior import parent_host_priors
 from ..model.likelihood import CoupledGrowthModel, build_design
-from ..outputs import package_versions
+from ..outputs import StageTimes, package_versions
 from ..validate import in_file
 from ..selection.compiled import SelectionSet, build_selection
 from .summary import (convergence_block, degeneracy_warnings, describe_parameters,
@@ -114,7 +114,7 @@ def build_model(config, data: FitData, *, selection_aware: bool = True, catalog:
 
 
 def run_fit(config, data: FitData, *, chain_path=None, on_check=None, selection_aware: bool = True,
-            verdicts: dict | None = None, chain_attrs: dict | None = None) -> FitResult:
+            verdicts: dict | None = None, chain_attrs: dict | None = None, timer: StageTimes | None = None) -> FitResult:
     """MAP, Laplace, MCMC and the summary of one run (`chain_attrs`: see inference.resume).
 
     Parameters
@@ -127,24 +127,33 @@ def run_fit(config, data: FitData, *, chain_path=None, on_check=None, selection_
     verdicts : dict {threshold, k_refs} from `verdicts.verdict_options`, optional; default the
         configuration's `[verdicts]` table
 
+    `timer` (outputs.StageTimes, optional) receives the seconds of the stages "map" (model, parent
+    host priors, MAP and Hessian), "sampling", "sensitivity", "significance" and "crosscheck".
+
     Returns
     -------
     FitResult
     """
-    model = build_model(config, data, selection_aware=selection_aware)
-    approx = laplace(model)
-    chain = sample_posterior(model, approx, config.sampler, seed=config.seed, chain_path=chain_path,
-                             on_check=on_check, chain_attrs=chain_attrs)
-    summary = summarise(config, data, model, approx, chain, verdicts)
+    timer = StageTimes() if timer is None else timer
+    with timer.stage("map"):
+        model = build_model(config, data, selection_aware=selection_aware)
+        approx = laplace(model)
+    with timer.stage("sampling"):
+        chain = sample_posterior(model, approx, config.sampler, seed=config.seed, chain_path=chain_path,
+                                 on_check=on_check, chain_attrs=chain_attrs)
+    summary = summarise(config, data, model, approx, chain, verdicts, timer)
     return FitResult(model=model, laplace=approx, chain=chain, summary=summary)
 
 
 def summarise(config, data: FitData, model: CoupledGrowthModel, approx, chain,
-              verdicts: dict | None = None) -> dict:
-    """The summary.json content of a fit."""
-    sensitivity = offset_sensitivity(model, approx)
+              verdicts: dict | None = None, timer: StageTimes | None = None) -> dict:
+    """The summary.json content of a fit (`timer` collects the stages' wall times)."""
+    timer = StageTimes() if timer is None else timer
+    with timer.stage("sensitivity"):
+        sensitivity = offset_sensitivity(model, approx)
     warnings = degeneracy_warnings(model, data.catalog, approx, sensitivity)
-    judged = assess(config, data, model, approx, chain, verdicts)
+    with timer.stage("verdicts"):
+        judged = assess(config, data, model, approx, chain, verdicts)
     warnings = [line for line in judged.pop("warnings") if line] + warnings
     if not chain.converged:
         warnings.insert(0, f"the chain did not converge: {chain.n_steps} steps is "
@@ -161,13 +170,16 @@ def summarise(config, data: FitData, model: CoupledGrowthModel, approx, chain,
         warnings.append("no selection is declared for any sample: k is only as good as the "
                         "assumption that the samples were not selected on black-hole mass")
     k_summary = describe_samples(chain.samples[:, model.index_k])
-    crosscheck = run_crosscheck(config, data.catalog)
+    with timer.stage("crosscheck"):
+        crosscheck = run_crosscheck(config, data.catalog)
     warnings += crosscheck_warnings(crosscheck, k_summary)
+    with timer.stage("significance"):
+        tests = hypothesis_tests(model, chain, judged["significance"])
     return {
         "k": k_summary,
         "headline": judged["headline"],
         "verdicts": judged["verdicts"],
-        "tests": hypothesis_tests(model, chain, judged["significance"]),
+        "tests": tests,
         "sensitivity": judged["sensitivity"],
         "information": judged["information"],
         "identifiability": judged["identifiability"],

@@ -14,10 +14,13 @@ from scipy import stats
 from ..config import SamplerOptions
 from ..errors import ConfigError
 from ..seeding import child_seeds, make_rng
+from .importance import importance_posterior
 from .laplace import LaplaceResult, gradient, laplace, start_walkers
 from .mcmc import ChainResult, default_walkers, run_ensemble
 
+#: Estimators of the null tests and the challenge; campaigns also offer "importance".
 MODES = ("fast", "mcmc")
+CAMPAIGN_MODES = ("fast", "importance", "mcmc")
 #: Step cap of one MCMC fit of a mock (the run configuration's cap is for the real data, where
 #: one fit may take minutes; a campaign fits thousands). A capped chain is flagged converged=False.
 CAMPAIGN_MAX_STEPS = 3000
@@ -39,6 +42,9 @@ class KEstimate:
     tau_max : float, largest autocorrelation time in steps (NaN in fast mode)
     n_steps : int, chain length (0 in fast mode)
     k_draws : ndarray or None, posterior draws of k when asked for
+    path : str, which estimator ran: "laplace", "importance", "short chain" (importance weights
+        degenerate) or "mcmc"
+    ess_fraction : float, effective sample size over draws of the importance weights (NaN otherwise)
     """
 
     k: float
@@ -49,12 +55,15 @@ class KEstimate:
     tau_max: float = float("nan")
     n_steps: int = 0
     k_draws: np.ndarray | None = None
+    path: str = "laplace"
+    ess_fraction: float = float("nan")
 
     def as_dict(self) -> dict:
         """JSON-like form (intervals as lists); ``k_draws`` only when present."""
         out = {"k": self.k, "k_std": self.k_std, "interval68": list(self.interval68),
                "interval95": list(self.interval95), "converged": self.converged,
-               "tau_max": self.tau_max, "n_steps": self.n_steps}
+               "tau_max": self.tau_max, "n_steps": self.n_steps, "path": self.path,
+               "ess_fraction": self.ess_fraction}
         if self.k_draws is not None:
             out["k_draws"] = self.k_draws
         return out
@@ -90,7 +99,9 @@ def estimate_k(model, *, mode: str = "fast", sampler: SamplerOptions = SamplerOp
     Parameters
     ----------
     model : CoupledGrowthModel
-    mode : "fast" (MAP + Laplace Gaussian) or "mcmc" (emcee as `cosmogrow fit`, capped)
+    mode : "fast" (MAP + Laplace Gaussian), "importance" (the Laplace approximation corrected to the
+        exact posterior by importance sampling when a selection is modelled; a short chain when the
+        weights degenerate) or "mcmc" (emcee as `cosmogrow fit`, capped)
     sampler : config.SamplerOptions of the run (walkers, autocorrelation rule)
     seed : int or SeedSequence; children 0, 1, 2 seed the walkers, the sampler and the draws
     max_steps : int, step cap of the MCMC
@@ -102,18 +113,27 @@ def estimate_k(model, *, mode: str = "fast", sampler: SamplerOptions = SamplerOp
     ConfigError
         An unknown mode.
     """
-    if mode not in MODES:
-        raise ConfigError(f"estimator.mode: expected one of {', '.join(MODES)}, got {mode!r}")
+    if mode not in CAMPAIGN_MODES:
+        raise ConfigError(f"estimator.mode: expected one of {', '.join(CAMPAIGN_MODES)}, got {mode!r}")
     approx = laplace(model)
     i = model.index_k
-    if mode == "fast":
+    walker_seed, _, draw_seed = child_seeds(seed, 3)
+    if mode == "fast" or (mode == "importance" and model.selection is None):
         k_map, k_std = float(approx.theta[i]), float(approx.std[i])
-        draws = (make_rng(child_seeds(seed, 3)[2]).normal(k_map, k_std, int(n_draws))
-                 if n_draws else None)
+        draws = make_rng(draw_seed).normal(k_map, k_std, int(n_draws)) if n_draws else None
         return KEstimate(k=k_map, k_std=k_std,
                          interval68=(k_map - _Z68 * k_std, k_map + _Z68 * k_std),
                          interval95=(k_map - _Z95 * k_std, k_map + _Z95 * k_std),
                          converged=laplace_is_sound(model, approx), k_draws=draws)
+    if mode == "importance":
+        weighted = importance_posterior(model, approx, make_rng(walker_seed))
+        if weighted.adequate:
+            q = weighted.quantiles(i)
+            draws = weighted.resample(i, int(n_draws), make_rng(draw_seed)) if n_draws else None
+            return KEstimate(k=float(q[2]), k_std=weighted.std(i), interval68=(float(q[1]), float(q[3])),
+                             interval95=(float(q[0]), float(q[4])),
+                             converged=laplace_is_sound(model, approx), k_draws=draws,
+                             path="importance", ess_fraction=weighted.ess_fraction)
     chain = sample_posterior(model, approx, sampler, seed=seed, max_steps=max_steps)
     k = chain.samples[:, i]
     q = np.percentile(k, [2.5, 16, 50, 84, 97.5])
@@ -122,7 +142,8 @@ def estimate_k(model, *, mode: str = "fast", sampler: SamplerOptions = SamplerOp
     return KEstimate(k=float(q[2]), k_std=float(np.std(k, ddof=1)),
                      interval68=(float(q[1]), float(q[3])), interval95=(float(q[0]), float(q[4])),
                      converged=bool(chain.converged), tau_max=float(chain.tau_max),
-                     n_steps=int(chain.n_steps), k_draws=draws)
+                     n_steps=int(chain.n_steps), k_draws=draws,
+                     path="mcmc" if mode == "mcmc" else "short chain")
 
 
 def laplace_is_sound(model, approx: LaplaceResult, tolerance: float = 0.01) -> bool:

@@ -7,6 +7,9 @@ from .style import plt
 
 style.apply()
 
+#: Samples larger than this are drawn as points without error bars in the relation figure.
+MAX_ERROR_BARS = 1000
+
 
 # parameter -> (mathtext symbol, unit); log-masses and their offsets are in dex (log10 Msun)
 _AXIS_SYMBOLS = {"k": ("$k$", None), "alpha": (r"$\alpha$", r"log$_{10}$ M$_\odot$"), "beta": (r"$\beta$", None),
@@ -52,9 +55,14 @@ def relation_figure(catalog, summary, options, path):
     for i, name in enumerate(catalog.sample_names):
         sel = catalog.sample == name
         z_med = float(np.median(catalog.z[sel]))
-        ax.errorbar(catalog.log_mstar[sel], catalog.log_mbh[sel], xerr=catalog.log_mstar_err[sel],
-                    yerr=catalog.log_mbh_err[sel], fmt="o", ms=3, alpha=0.55, elinewidth=0.5,
-                    color=style.colour(i), label=f"{name} (median z = {z_med:.2f})")
+        label = f"{name} (median z = {z_med:.2f})"
+        if sel.sum() <= MAX_ERROR_BARS:
+            ax.errorbar(catalog.log_mstar[sel], catalog.log_mbh[sel], xerr=catalog.log_mstar_err[sel],
+                        yerr=catalog.log_mbh_err[sel], fmt="o", ms=3, alpha=0.55, elinewidth=0.5,
+                        color=style.colour(i), label=label)
+        else:  # error bars of thousands of points hide the data and take seconds to draw
+            ax.scatter(catalog.log_mstar[sel], catalog.log_mbh[sel], s=2, alpha=0.3, lw=0,
+                       color=style.colour(i), rasterized=True, label=f"{label}, error bars omitted")
         x = np.log10((1 + z_med) / (1 + options.z_ref))
         line = (params["alpha"] + beta * (grid - options.log_mstar_pivot)
                 - (params["k"] - beta * options.host_growth) * x)

@@ -2,9 +2,8 @@
 --out and --force."""
 
 import argparse
+import math
 from pathlib import Path
-
-import numpy as np
 
 from ... import validate
 from ...errors import ConfigError, InputError
@@ -50,6 +49,8 @@ def read_k_samples(fit_dir):
     InputError
         When the directory or file is missing, has no array ``k``, or holds no or non-finite samples.
     """
+    import numpy as np
+
     fit_dir = Path(fit_dir)
     path = fit_dir / SAMPLES_FILE
     if not fit_dir.is_dir():
@@ -76,7 +77,7 @@ def positive(name, value, *, allow_zero=False):
     """Check a numeric option; ConfigError naming the option otherwise."""
     if value is None:
         return value
-    if not np.isfinite(value) or value < 0 or (value == 0 and not allow_zero):
+    if not math.isfinite(value) or value < 0 or (value == 0 and not allow_zero):
         relation = ">= 0" if allow_zero else "> 0"
         raise ConfigError(f"{name}: expected a finite number {relation}, got {value}")
     return value
@@ -85,13 +86,15 @@ def positive(name, value, *, allow_zero=False):
 def resolve_seed(config, seed):
     """Command-line seed, else the config's, else a fresh one (recorded in the results)."""
     if seed is None and config.seed is None:
+        import numpy as np
+
         seed = int(np.random.SeedSequence().entropy % 2**32)
     return config.with_overrides(seed=seed)
 
 
 def check_alpha(alpha):
     """--alpha is a probability strictly between 0 and 1."""
-    if not (np.isfinite(alpha) and 0 < alpha < 1):
+    if not (math.isfinite(alpha) and 0 < alpha < 1):
         raise ConfigError(f"--alpha: expected a number between 0 and 1 (exclusive), got {alpha}")
     return alpha
 
