@@ -92,21 +92,21 @@ def main():
             folder = tmp / name
             folder.mkdir()
             design = write_design(folder, cut)
-            row = {}
+            rates = {}
             for workers in (1, 2) if cores >= 2 else (1,):
                 for mode, n in (("fast", args.fast_mocks), ("mcmc", args.mcmc_mocks)):
                     pool = ProcessExecutor(workers)  # spawned workers, one BLAS thread each
                     got = timed_campaign(folder, design, mode, n, pool, f"{mode}{workers}")
-                    row[f"{mode}_per_s_{workers}w"] = got["steady"]
-                    row[f"{mode}_per_s_{workers}w_end_to_end"] = got["end_to_end"]
-                    row[f"{mode}_cores_obtained_{workers}w"] = got["cores_obtained"]
-                    row[f"{mode}_converged_{workers}w"] = got["converged"]
+                    rates[f"{mode}_per_s_{workers}w"] = got["steady"]
+                    rates[f"{mode}_per_s_{workers}w_end_to_end"] = got["end_to_end"]
+                    rates[f"{mode}_cores_obtained_{workers}w"] = got["cores_obtained"]
+                    rates[f"{mode}_converged_{workers}w"] = got["converged"]
             if cores >= 2:
-                row["fast_speedup_2_vs_1"] = row["fast_per_s_2w"] / row["fast_per_s_1w"]
-                row["mcmc_speedup_2_vs_1"] = row["mcmc_per_s_2w"] / row["mcmc_per_s_1w"]
-            report[name] = row
+                rates["fast_speedup_2_vs_1"] = rates["fast_per_s_2w"] / rates["fast_per_s_1w"]
+                rates["mcmc_speedup_2_vs_1"] = rates["mcmc_per_s_2w"] / rates["mcmc_per_s_1w"]
+            report[name] = rates
             print(f"\n[{name} design, N = {2 * N_PER_SAMPLE} objects per mock]")
-            for key, value in row.items():
+            for key, value in rates.items():
                 print(f"  {key:34s} {value:8.2f}")
     print(f"\nload average after: {os.getloadavg()[0]:.2f}")
     targets = {"fast >= 50 /s": ("fast_per_s_2w", 50.0), "MCMC >= 2 /s": ("mcmc_per_s_2w", 2.0),

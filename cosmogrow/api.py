@@ -67,7 +67,8 @@ def fit(config: RunConfig, *, selection_aware: bool = True, claims=(), threshold
 
     Parameters
     ----------
-    config : RunConfig, from `run_config` or `config.read_run_config`
+    config : RunConfig, from `run_config` or `config.read_run_config`; without a seed, seed 0 is used
+        (the command line draws and records a fresh one instead), so a notebook rerun repeats itself
     selection_aware : bool, model each sample's declared selection (default True)
     claims : sequence of float, values of k to give verdicts on besides 0 and 3
     threshold : float, optional; the verdict threshold in σ (default 3, or the configuration's)

@@ -3,12 +3,11 @@
 import json
 
 import numpy as np
-import pandas as pd
 import pytest
 
 import cosmogrow
 from cosmogrow.cli import main
-from tests.mocks import mock_catalog, write_csv
+from tests.mocks import mock_catalog
 
 
 def test_every_public_name_resolves_with_a_docstring():

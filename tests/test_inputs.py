@@ -2,8 +2,6 @@
 column, value), nothing written. Plus inputs that must be read correctly (a BOM, a categorical
 Parquet column) and the rules of --out."""
 
-import json
-
 import numpy as np
 import pandas as pd
 import pytest

@@ -16,7 +16,6 @@ import pytest
 from cosmogrow import background
 from cosmogrow.checks import null_tests as nullcases
 from cosmogrow.checks.context import binomial_two_sided_p
-from cosmogrow.checks.null_suite import suite_summary
 from cosmogrow.checks.wording import combined_pulls, pull_row
 from cosmogrow.data.catalog import Catalog
 from cosmogrow.cli.dispatch import main

@@ -17,7 +17,7 @@ from ..simulation import population as simulate
 from ..config import load_toml
 from ..errors import ConfigError
 from ..inference.fit import FitData, build_model
-from ..inference.k_estimate import CAMPAIGN_MAX_STEPS, CAMPAIGN_MODES, MODES, estimate_k
+from ..inference.k_estimate import CAMPAIGN_MAX_STEPS, CAMPAIGN_MODES, estimate_k
 from ..outputs import sha256_file
 from ..data.catalog import Catalog
 from ..model.truth import Truth

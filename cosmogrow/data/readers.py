@@ -9,7 +9,6 @@ outside [0, 13] (with a hint for linear masses), duplicate id. Rows are dropped 
 ``drop_invalid=True``, and then each one is listed in the returned report.
 """
 
-import warnings
 from pathlib import Path
 
 import numpy as np
@@ -18,7 +17,7 @@ import pandas as pd
 from .catalog import (DEFAULT_HOST_TYPE, DEFAULT_METHOD, DEFAULT_SOURCE, OPTIONAL_LABELS, STANDARD_COLUMNS,
                       Catalog)
 from ..errors import ConfigError, InputError
-from .files import FORMATS, check_redshift_unit, check_scalar, format_of, read_table
+from .files import check_redshift_unit, check_scalar, format_of, read_table
 
 # Linear-mass alternatives to the log columns; they must carry an astropy mass unit.
 LINEAR_COLUMNS = {"mbh": "log_mbh", "mbh_err": "log_mbh_err",

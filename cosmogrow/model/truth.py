@@ -15,8 +15,6 @@ the parent true hosts of selected samples, as a fit estimated them].
 
 from dataclasses import dataclass, field, fields
 
-import numpy as np
-
 from .. import validate
 from ..errors import ConfigError
 
