@@ -76,7 +76,7 @@ def fit_runs(paths, out, repeats):
     """Wall times, peak RSS and the last run's stage timings of `cosmogrow fit`."""
     walls, peaks = [], []
     for _ in range(repeats):
-        seconds, peak = run_process(ENTRY + ["fit", *paths, "--out", str(out), "--seed", "1", "--quiet"])
+        seconds, peak = run_process(ENTRY + ["fit", *paths, "--out", str(out), "--seed", "1", "--quiet", "--force"])
         walls.append(seconds)
         peaks.append(peak)
     timings = json.loads((out / "summary.json").read_text())["timings"]
