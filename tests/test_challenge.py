@@ -236,6 +236,7 @@ def test_fit_and_challenge_agree_on_seeded_designs():
             statuses.append(verdict["status"])
         agreeing += both
         kinds.add((kind, result["selection_declared"]))
+    print(f"fit and challenge agree on {agreeing} of 24 designs")
     assert {("cut", True), ("plain", False), ("confounded", False)} <= kinds
     assert set(statuses) == set(STATUSES)  # every word occurs
     assert agreeing >= 20, f"fit and challenge agree on {agreeing} of 24 designs"

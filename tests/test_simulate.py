@@ -12,7 +12,8 @@ from cosmogrow.errors import ConfigError
 from cosmogrow.simulation.massfunction import BALDRY2012, HostMassSampler
 from cosmogrow.model.likelihood import calibrated_hosts
 from cosmogrow.selection.compiled import SelectionSet
-from cosmogrow.simulation.population import RedshiftSampler, resample_hosts, simulate_population
+from cosmogrow.simulation.population import RedshiftSampler, simulate_population
+from cosmogrow.simulation.resample import resample_hosts
 
 # Baldry et al. 2012 (MNRAS 421, 621) double Schechter, h = 0.7 [paper, abstract]:
 # M* = 10^10.66 Msun, φ1 = 3.96e-3, α1 = -0.35, φ2 = 0.79e-3 Mpc^-3, α2 = -1.47.

@@ -14,6 +14,7 @@ Nothing here loops over replicas, prints or writes files.
 import numpy as np
 
 from ..simulation import population as simulate
+from ..simulation.resample import resample_hosts
 from ..config import load_toml
 from ..errors import ConfigError
 from ..inference.fit import FitData, build_model
@@ -66,8 +67,8 @@ def draw_replica(config, data: FitData, truth: Truth, seed) -> Catalog:
     -------
     catalog.Catalog
     """
-    return simulate.resample_hosts(data.catalog, truth, data.selections, data.cosmology, seed=seed,
-                                   host_errors=config.model.host_errors)
+    return resample_hosts(data.catalog, truth, data.selections, data.cosmology, seed=seed,
+                          host_errors=config.model.host_errors)
 
 
 def draw_simulated(simulator: simulate.Simulator, truth: Truth, seed) -> Catalog:

@@ -22,7 +22,8 @@ from ..data.catalog import Catalog
 from ..inference.fit import FitData, build_model
 from ..inference.laplace import find_map, hessian
 from ..seeding import child_seed
-from ..simulation.population import resample_hosts, simulate_population
+from ..simulation.population import simulate_population
+from ..simulation.resample import resample_hosts
 
 #: Below this fraction of the largest diagonal entry a parameter counts as uninformed.
 _UNINFORMED = 1e-12

@@ -13,7 +13,8 @@ from ..errors import ConfigError
 from ..inference.fit import FitData
 from ..outputs import package_versions
 from ..seeding import child_seed, make_rng
-from ..simulation.population import resample_hosts, simulate_population
+from ..simulation.population import simulate_population
+from ..simulation.resample import resample_hosts
 from . import scans
 from .fisher import expected_information, population, sigma_of
 from .scans import base_sizes, power_row

@@ -263,7 +263,7 @@ class SelectionSet:
         """P(S | s, z): `log_probability`, times 0 for objects failing a host-mass cut."""
         return np.exp(self.log_probability(mu_true, delta, var_lat, m_err)) * self.host_pass
 
-    def draw_selected(self, m_true, m_obs, rng=None, *, rows=None):
+    def draw_selected(self, m_true, m_obs, rng=None, *, rows=None, log_mstar=None):
         """Apply every cut by random draws with the same probits.
 
         Parameters
@@ -272,6 +272,8 @@ class SelectionSet:
             catalogue rows `rows` (all rows when None)
         rng : seed or numpy Generator
         rows : array of int, optional
+        log_mstar : array_like (n,), optional; observed host masses to apply host-mass cuts to
+            (default: the compiled rows' own; black-hole-mass thresholds depend on z only)
 
         Returns
         -------
@@ -281,7 +283,7 @@ class SelectionSet:
         m_true = np.asarray(m_true, dtype=float)
         m_obs = np.asarray(m_obs, dtype=float)
         pick = slice(None) if rows is None else np.asarray(rows)
-        host = self._log_mstar[pick]
+        host = self._log_mstar[pick] if log_mstar is None else np.asarray(log_mstar, dtype=float)
         keep = np.ones(m_true.shape, dtype=bool)
         for on, lim, width in zip(self._slot_on, self._slot_lim, self._slot_width):
             on, lim, width = on[pick], lim[pick], width[pick]
@@ -289,6 +291,10 @@ class SelectionSet:
             noise = rng.standard_normal(m_true.shape)
             keep &= (on == _NONE) | (value - width * noise >= lim)
         return keep
+
+    def has_host_cut(self, rows) -> np.ndarray:
+        """Whether each row of `rows` (catalogue row indices) has a host-mass cut."""
+        return np.any(self._slot_on[:, np.asarray(rows)] == _HOST, axis=0)
 
     def single_mass_cut_rows(self, rows) -> np.ndarray:
         """The rows (of `rows`, catalogue row indices) whose selection is exactly one probit cut

@@ -13,8 +13,8 @@ stellar mass s at the observed epoch (log10 Msun); x = log10((1+z)/(1+z_ref)):
   (`SelectionSet.draw_selected`; flux and sphere-of-influence cuts act on m, host cuts on s_obs).
 Candidates are drawn in batches until each sample holds its requested number of selected objects.
 
-`simulate_population` does this for a configuration (simulate_config); `resample_hosts` keeps a
-catalogue's design and redraws only its black-hole masses.
+`simulate_population` does this for a configuration (simulate_config); `simulation.resample`
+redraws the masses of a real catalogue, keeping its design.
 """
 
 from dataclasses import replace
@@ -27,7 +27,7 @@ from ..background import comoving_volume_element, describe
 from ..data.catalog import Catalog
 from ..errors import ConfigError
 from .massfunction import HostMassSampler, inverse_cdf_table
-from ..model.likelihood import calibrated_hosts, lever_arm
+from ..model.likelihood import lever_arm
 from ..model.mean import latent_mean
 from ..seeding import child_seed, make_rng
 from ..selection.compiled import SelectionSet
@@ -39,8 +39,6 @@ _MAX_BATCH = 2_000_000
 #: At most this many candidates per sample; beyond, the selection is called absurdly tight.
 MAX_CANDIDATES = 50_000_000
 _CHECK_AFTER = 100_000  # candidates drawn before the projected total is checked against the cap
-_MAX_ROUNDS = 30  # rejection rounds of resample_hosts ...
-_MAX_COPIES = 4096  # ... each drawing at most this many proposals per pending row
 
 
 class SimulationResult(NamedTuple):
@@ -223,134 +221,3 @@ def true_masses(truth: Truth, s_true: np.ndarray, z: np.ndarray, sigma_int, rng:
     # the host at the reference epoch, s + gamma x, so the coupling term is k itself
     return latent_mean(truth.alpha, truth.beta, truth.k, s_true + truth.gamma * x - truth.s_pivot, x,
                        host_offset=host_offset, scatter=scatter)
-
-
-def resample_hosts(catalog: Catalog, truth, selections_by_sample: dict, cosmo, seed=None, *,
-                   host_errors: str = "calibrated") -> Catalog:
-    """Redraw only the black-hole masses of a catalogue, keeping its design.
-
-    Every row keeps its id, z, log_mstar (as observed), errors, sample and method; only log_mbh
-    changes. The true host mass behind each row is drawn from the distribution the fit's
-    likelihood assumes for it given the observed one (`host_errors`, as the run configuration's
-    model.host_errors; the truth's host_priors give the parent host distribution of selected
-    samples), so a resampled catalogue is an exact draw from the fitted model:
-    - "calibrated" (the fit's default): regression calibration, s ~ N(calibrated mean,
-      calibrated error²) from `cosmogrow.model.likelihood.calibrated_hosts`;
-    - "first_order": s = log_mstar + N(0, log_mstar_err²) (a flat prior on the true host);
-    - "fixed": s = log_mstar (host errors then enter only the likelihood).
-    Then m follows the forward model of the module note and m_obs = m + delta + N(0, log_mbh_err²).
-    With selection, each row is redrawn until it is selected (vectorised rejection over the rows
-    still pending), so each row is a draw from p(m_obs | S, s_obs, z). A row gets up to ~8e4
-    proposals (`_MAX_ROUNDS` rounds of up to `_MAX_COPIES`): rows accepted less often than ~1e-5
-    raise.
-
-    Parameters
-    ----------
-    catalog : Catalog
-    truth : Truth, or a [truth] table or truth record returned by `simulate_population`
-    selections_by_sample : dict, sample name -> selection (tables or models); may be empty
-    cosmo : astropy cosmology
-    seed : int, SeedSequence or Generator, optional
-    host_errors : "calibrated", "first_order" or "fixed"
-
-    Returns
-    -------
-    Catalog
-
-    Raises
-    ------
-    ConfigError
-        An unknown `host_errors`, or rows that the selection essentially never accepts (e.g.
-        failing a hard host-mass cut).
-    """
-    truth = parse_truth(truth)
-    rng = make_rng(seed)
-    selection = SelectionSet.compile(selections_by_sample or {}, catalog, cosmo)
-    n = len(catalog)
-    if not np.all(selection.host_pass):
-        bad = np.flatnonzero(~selection.host_pass)
-        raise ConfigError(f"resample_hosts: {len(bad)} row(s) fail a host_mass_cut of their sample and "
-                          f"can never be selected (e.g. id '{catalog.ids[bad[0]]}', sample "
-                          f"'{catalog.sample[bad[0]]}', log_mstar {catalog.log_mstar[bad[0]]:.3f})")
-    host_mean, host_err = _latent_hosts(catalog, host_errors, truth.host_priors)
-    sigma, delta, shift = np.empty(n), np.empty(n), np.empty(n)
-    for name in catalog.sample_names:
-        sigma[catalog.sample == name] = truth.scatter_of(name)
-    for method in catalog.method_names:
-        delta[catalog.method == method] = truth.offset_of(method)
-    for host_type in catalog.host_type_names:
-        shift[catalog.host_type == host_type] = truth.host_offset_of(host_type)
-    m_obs = np.full(n, np.nan)
-    pending = np.arange(n)
-    for round_index in range(_MAX_ROUNDS):
-        if round_index == _EXACT_AFTER_ROUNDS:
-            exact = selection.single_mass_cut_rows(pending) if truth.f_out == 0 else pending[:0]
-            if len(exact):
-                m_obs[exact] = _draw_truncated(truth, catalog, selection, exact, host_mean, host_err,
-                                               sigma, delta, shift, rng)
-                pending = np.setdiff1d(pending, exact, assume_unique=True)
-                if not len(pending):
-                    return catalog.replace(log_mbh=m_obs)
-        copies = int(min(2**round_index, _MAX_COPIES, max(1, _MAX_BATCH // len(pending))))
-        rows = np.repeat(pending, copies)
-        s_true = host_mean[rows] + host_err[rows] * rng.standard_normal(len(rows))
-        m_true = true_masses(truth, s_true, catalog.z[rows], sigma[rows], rng, shift[rows])
-        m_draw = m_true + delta[rows] + catalog.log_mbh_err[rows] * rng.standard_normal(len(rows))
-        keep = selection.draw_selected(m_true, m_draw, rng, rows=rows)
-        accepted_rows, first = np.unique(rows[keep], return_index=True)
-        m_obs[accepted_rows] = m_draw[np.flatnonzero(keep)[first]]
-        pending = np.setdiff1d(pending, accepted_rows, assume_unique=True)
-        if not len(pending):
-            return catalog.replace(log_mbh=m_obs)
-    names = sorted(set(catalog.sample[pending].tolist()))
-    raise ConfigError(f"resample_hosts: {len(pending)} row(s) of sample(s) {', '.join(names)} were never "
-                      f"selected in {_MAX_ROUNDS} rounds of redraws (e.g. id '{catalog.ids[pending[0]]}'); "
-                      "the selection rejects them under this truth (check host-mass cuts and thresholds)")
-
-
-HOST_ERROR_MODES = ("calibrated", "first_order", "fixed")
-# Rows still unselected after this many rejection rounds (acceptance below ~1/15) and subject to a
-# single black-hole-mass cut are drawn exactly from the truncated distribution instead.
-_EXACT_AFTER_ROUNDS = 4
-
-
-def _draw_truncated(truth, catalog, selection, rows, host_mean, host_err, sigma, delta, shift, rng):
-    """Exact draws of m_obs given selection for rows with a single probit cut.
-
-    The latent mass is Gaussian, m ~ N(mu, v) with the host uncertainty folded in; a probit cut on
-    a Gaussian variable y (m, or m_obs = m + delta + e) keeps it when u = y - w eps >= m_lim, so
-    u is drawn from its truncated normal and y | u from the conditional normal; for a cut on m,
-    m_obs = m + delta + e afterwards. No rejection, so rows of tiny acceptance cost nothing extra.
-    """
-    from scipy import stats
-
-    x = lever_arm(catalog.z[rows], truth.z_ref)
-    mu = latent_mean(truth.alpha, truth.beta, truth.k, host_mean[rows] + truth.gamma * x - truth.s_pivot,
-                     x, host_offset=shift[rows])
-    var = sigma[rows] ** 2 + truth.beta**2 * host_err[rows] ** 2
-    err = catalog.log_mbh_err[rows]
-    observed, lim, width = selection.single_mass_cut(rows)
-    width2 = width**2
-    centre = mu + np.where(observed, delta[rows], 0.0)
-    var_y = var + np.where(observed, err**2, 0.0)
-    spread_u = np.sqrt(var_y + width2)
-    low = (lim - centre) / spread_u
-    u = centre + spread_u * stats.truncnorm.rvs(low, np.inf, random_state=rng)
-    gain = var_y / (var_y + width2)
-    y = centre + gain * (u - centre) + np.sqrt(var_y * (1 - gain)) * rng.standard_normal(len(rows))
-    return np.where(observed, y, y + delta[rows] + err * rng.standard_normal(len(rows)))
-
-
-def _latent_hosts(catalog, mode, host_priors=None):
-    """Mean and spread (log10 Msun, dex) of each row's true host given the observed one.
-
-    `host_priors` ({sample: (mean, variance)}, the parent hosts of selected samples as the fit
-    estimated them; a truth table's "host_priors") replaces the observed moments of those samples,
-    so the selection then acts on (true host, mass) as it does in the fit's likelihood.
-    """
-    if mode not in HOST_ERROR_MODES:
-        raise ConfigError(f"resample_hosts: host_errors: expected one of {', '.join(HOST_ERROR_MODES)}, "
-                          f"got {mode!r}")
-    if mode == "fixed":
-        return np.asarray(catalog.log_mstar, dtype=float), np.zeros(len(catalog))
-    return calibrated_hosts(catalog, mode, host_priors)
