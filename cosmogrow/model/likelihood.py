@@ -10,6 +10,8 @@ With a selection set, each object's likelihood is conditioned on its selection (
 never validates its input data (the catalogue did) and returns -inf outside the prior.
 """
 
+from dataclasses import dataclass
+
 import numpy as np
 
 from ..errors import ConfigError
@@ -67,6 +69,12 @@ class CoupledGrowthModel:
         self._ev_ratio = design.m_err**2 + design.s_err**2
         self._m_err2 = design.m_err**2
         self._s_err2 = design.s_err**2
+        self._all_rows = _Rows.of(design)
+        # the selection correction bound to the data, evaluated on the rows it corrects only
+        self._correction = None
+        if self.selection is not None and self.selection.corrects_likelihood:
+            self._correction = self.selection.bind(design.m_obs, design.m_err)
+            self._corrected_rows = _Rows.of(design, self._correction.rows)
         self.host_priors = dict(host_priors or {})
         self.map_start = None if map_start is None else np.array(map_start, dtype=float)
         # Without outliers the Gaussian part always goes through weighted moments; a selection
@@ -181,43 +189,46 @@ class CoupledGrowthModel:
     def latent_mean(self, theta) -> np.ndarray:
         """Mean latent log M_BH (log10 Msun) at the observed epoch, shape (n_walkers, N): the
         shared forward model `model.mean.latent_mean` with this model's hosts and offsets."""
-        theta = np.atleast_2d(theta)
-        layout, d = self.layout, self.design
+        return self._mean(np.atleast_2d(theta), self._all_rows)
+
+    def _mean(self, theta, rows):
+        layout = self.layout
         beta = _column(theta, layout.index_beta) if self.relation else 1.0
         k_eff = _column(theta, layout.index_k) - beta * self.gamma
         # a host-type offset is a real shift of the latent mass, seen by a selection on it
-        host = (layout.per_object_offsets(theta, "host_type", d.host_index)
+        host = (layout.per_object_offsets(theta, "host_type", rows.host_index)
                 if self._host_offsets else None)
-        return latent_mean(_column(theta, layout.index_alpha), beta, k_eff, d.s_centred, d.x,
+        return latent_mean(_column(theta, layout.index_alpha), beta, k_eff, rows.s_centred, rows.x,
                            host_offset=host)
 
-    def _latent(self, theta):
+    def _latent(self, theta, rows=None):
         """Per object and walker: latent mean mu_true, offset delta, latent variance var_lat and the
-        total variance of m_obs (docs/method.md#model)."""
-        d = self.design
+        total variance of m_obs (docs/method.md#model), on `rows` (a `_Rows`; default all rows)."""
+        rows = self._all_rows if rows is None else rows
         layout = self.layout
         beta = _column(theta, layout.index_beta) if self.relation else 1.0
         sig2 = theta[:, layout.scatter] ** 2
-        sig2_obj = sig2 if sig2.shape[1] == 1 else sig2[:, d.scatter_index]
+        sig2_obj = sig2 if sig2.shape[1] == 1 else sig2[:, rows.scatter_index]
         if len(layout.group("method").free_labels):
-            delta = layout.per_object_offsets(theta, "method", d.method_index)
+            delta = layout.per_object_offsets(theta, "method", rows.method_index)
         else:
             delta = 0.0
-        mu_true = self.latent_mean(theta)
+        mu_true = self._mean(theta, rows)
         if self.relation:
-            var_lat = sig2_obj + beta**2 * self._s_err2
-            var = var_lat + self._m_err2
+            var_lat = sig2_obj + beta**2 * rows.s_err2
+            var = var_lat + rows.m_err2
         else:
-            var_lat = sig2_obj + self._s_err2
-            var = sig2_obj + self._ev_ratio
+            var_lat = sig2_obj + rows.s_err2
+            var = sig2_obj + rows.ev_ratio
         return mu_true, delta, var_lat, var
 
     def _selection_chunk(self, theta):
         """Moments for the Gaussian part plus the selection correction (no outliers)."""
-        d = self.design
-        mu_true, delta, var_lat, _ = self._latent(theta)
-        correction = self.selection.log_correction(mu_true, delta, var_lat, d.m_obs, d.m_err)
-        return self._moments.log_likelihood(theta) + correction.sum(axis=1)
+        log_like = self._moments.log_likelihood(theta)
+        if self._correction is None:
+            return log_like
+        mu_true, delta, var_lat, _ = self._latent(theta, self._corrected_rows)
+        return log_like + self._correction(mu_true, delta, var_lat).sum(axis=1)
 
     def _log_likelihood_chunk(self, theta, reduce=True):
         d = self.design
@@ -229,8 +240,9 @@ class CoupledGrowthModel:
             var_out = var + _column(theta, self.layout.index_sigma_out) ** 2
             log_out = -0.5 * (resid2 / var_out + np.log(var_out) + LOG_2PI)
             log_like = np.logaddexp(np.log1p(-f_out) + log_like, np.log(f_out) + log_out)
-        if self.selection is not None:
-            log_like = log_like + self.selection.log_correction(mu_true, delta, var_lat, d.m_obs, d.m_err)
+        if self._correction is not None:
+            rows = self._correction.rows
+            log_like[:, rows] += self._correction(*_on_rows(rows, mu_true, delta, var_lat))
         return log_like.sum(axis=1) if reduce else log_like
 
     # ----- starting point ---------------------------------------------------------------
@@ -325,6 +337,33 @@ def _offset_dummies(design):
     out = [(design.method_index == j).astype(float) for j in range(1, len(design.method_names))]
     out += [(design.host_index == j).astype(float) for j in range(1, len(design.host_type_names))]
     return out
+
+
+def _on_rows(rows, *arrays):
+    """Each array restricted to `rows` on its last axis (scalars pass through)."""
+    return [a if np.ndim(a) == 0 or np.shape(a)[-1] == 1 else a[..., rows] for a in arrays]
+
+
+@dataclass(frozen=True)
+class _Rows:
+    """The design arrays the latent mean and variance need, on a subset of rows."""
+
+    s_centred: np.ndarray
+    x: np.ndarray
+    s_err2: np.ndarray
+    m_err2: np.ndarray
+    ev_ratio: np.ndarray
+    scatter_index: np.ndarray
+    method_index: np.ndarray
+    host_index: np.ndarray
+
+    @classmethod
+    def of(cls, design, rows=slice(None)):
+        m_err2, s_err2 = design.m_err**2, design.s_err**2
+        return cls(s_centred=design.s_centred[rows], x=design.x[rows], s_err2=s_err2[rows],
+                   m_err2=m_err2[rows], ev_ratio=(m_err2 + s_err2)[rows],
+                   scatter_index=design.scatter_index[rows], method_index=design.method_index[rows],
+                   host_index=design.host_index[rows])
 
 
 def _column(theta, index):
