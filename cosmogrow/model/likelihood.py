@@ -99,7 +99,11 @@ class CoupledGrowthModel:
                                       offset_groups=groups, outliers=bool(self.options.outliers))
         self.lower, self.upper = self.layout.bounds(self.priors)
         self.offset_widths = np.concatenate(widths)
+        uniform = np.isfinite(self.lower) & np.isfinite(self.upper)
+        self._log_uniform_volume = np.sum(np.log(self.upper[uniform] - self.lower[uniform]))
+        self._two_log_widths = 2 * np.log(self.offset_widths)
         self._host_offsets = len(d.host_type_names) > 1
+        self._method_offsets = len(self.layout.group("method").free_labels) > 0
 
     @property
     def names(self) -> tuple:
@@ -130,12 +134,11 @@ class CoupledGrowthModel:
         theta = np.atleast_2d(theta)
         inside = np.all((theta > self.lower) & (theta < self.upper), axis=1)
         out = np.where(inside, 0.0, -np.inf)
-        uniform = np.isfinite(self.lower) & np.isfinite(self.upper)
-        out = out - np.sum(np.log(self.upper[uniform] - self.lower[uniform]))
+        out = out - self._log_uniform_volume
         offsets = self.layout.offsets
         if offsets.stop > offsets.start:
             z = theta[:, offsets] / self.offset_widths
-            out = out - 0.5 * np.sum(z**2 + LOG_2PI + 2 * np.log(self.offset_widths), axis=1)
+            out = out - 0.5 * np.sum(z**2 + LOG_2PI + self._two_log_widths, axis=1)
         return out
 
     def log_likelihood(self, theta: np.ndarray) -> np.ndarray:
@@ -149,6 +152,8 @@ class CoupledGrowthModel:
             chunk = self._moments.log_likelihood
         else:
             chunk = self._selection_chunk
+        if len(theta) <= rows:
+            return chunk(theta)
         return np.concatenate([chunk(theta[i:i + rows]) for i in range(0, len(theta), rows)])
 
     def log_prob(self, theta: np.ndarray) -> np.ndarray:
@@ -161,7 +166,9 @@ class CoupledGrowthModel:
         theta = np.atleast_2d(theta)
         out = self.log_prior(theta)
         ok = np.isfinite(out)
-        if np.any(ok):
+        if ok.all():
+            out = out + self.log_likelihood(theta)
+        elif np.any(ok):
             out[ok] = out[ok] + self.log_likelihood(theta[ok])
         out[~np.isfinite(out)] = -np.inf
         return out
@@ -209,7 +216,7 @@ class CoupledGrowthModel:
         beta = _column(theta, layout.index_beta) if self.relation else 1.0
         sig2 = theta[:, layout.scatter] ** 2
         sig2_obj = sig2 if sig2.shape[1] == 1 else sig2[:, rows.scatter_index]
-        if len(layout.group("method").free_labels):
+        if self._method_offsets:
             delta = layout.per_object_offsets(theta, "method", rows.method_index)
         else:
             delta = 0.0

@@ -27,7 +27,11 @@ def pick(value, rows):
 
 
 def _buffer(*arrays):
-    return np.empty(np.broadcast_shapes(*(np.shape(a) for a in arrays)))
+    first = np.shape(arrays[0])
+    shapes = [np.shape(a) for a in arrays[1:]]
+    if all(shape in (first, ()) for shape in shapes):
+        return np.empty(first)
+    return np.empty(np.broadcast_shapes(first, *shapes))
 
 
 class GroupTerms:
