@@ -235,7 +235,14 @@ class CoupledGrowthModel:
         if self._correction is None:
             return log_like
         mu_true, delta, var_lat, _ = self._latent(theta, self._corrected_rows)
-        return log_like + self._correction(mu_true, delta, var_lat).sum(axis=1)
+        correction = self._correction(mu_true, delta, var_lat)
+        rows = self._correction.rows
+        if len(rows) != len(self.design.m_obs) or np.any(rows[1:] < rows[:-1]):
+            # summed over every object in catalogue order (zeros elsewhere), as the pinned fits were made
+            every = np.zeros((len(theta), len(self.design.m_obs)))
+            every[:, rows] = correction
+            correction = every
+        return log_like + correction.sum(axis=1)
 
     def _log_likelihood_chunk(self, theta, reduce=True):
         d = self.design

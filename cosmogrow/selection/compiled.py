@@ -61,6 +61,13 @@ class SelectionSet:
         self._slot_on, self._slot_lim, self._slot_width = slots
         self._log_mstar = log_mstar
         self._groups = groups
+        # each row's group (-1: none) and its position within the group's arrays
+        self._row_group = np.full(n_rows, -1)
+        self._row_position = np.zeros(n_rows, dtype=np.intp)
+        for i, group in enumerate(groups):
+            index = np.arange(n_rows) if isinstance(group.rows, slice) else group.rows
+            self._row_group[index] = i
+            self._row_position[index] = np.arange(len(index))
         self.rows_failing_hard_cuts = failing
         host = (self._slot_on == _HOST) & (log_mstar[None, :] < self._slot_lim)
         self.host_pass = ~np.any(host, axis=0)
@@ -175,16 +182,23 @@ class SelectionSet:
         `rows` equals `log_correction(...)[..., rows]`, bit for bit."""
         return BoundCorrection(self._groups, m_obs, m_err, self.n_rows)
 
-    def log_probability(self, mu_true, delta, var_lat, m_err):
-        """log P(S | s, z) from the black-hole-mass cuts alone (the likelihood's normaliser)."""
-        shape = np.broadcast_shapes(*(np.shape(a) for a in (mu_true, delta, var_lat, m_err)),
-                                    (self.n_rows,))
+    def log_probability(self, mu_true, delta, var_lat, m_err, rows=None):
+        """log P(S | s, z) from the black-hole-mass cuts alone (the likelihood's normaliser).
+
+        With `rows` (catalogue row indices), the inputs hold those rows on their last axis and so
+        does the result; else every row."""
+        n = self.n_rows if rows is None else len(rows)
+        shape = np.broadcast_shapes(*(np.shape(a) for a in (mu_true, delta, var_lat, m_err)), (n,))
         out = np.zeros(shape)
-        for group in self._groups:
-            rows = group.rows
-            terms = GroupTerms(group.kind, group.lim, group.w2, 0.0, pick(m_err, rows) ** 2)
-            _, norm = terms(pick(mu_true, rows), pick(delta, rows), pick(var_lat, rows), numerator=False)
-            out[..., rows] = norm
+        for i, group in enumerate(self._groups):
+            lim, w2, where = group.lim, group.w2, group.rows
+            if rows is not None:
+                where = np.flatnonzero(self._row_group[rows] == i)
+                at = self._row_position[np.asarray(rows)[where]]
+                lim, w2 = tuple(a.take(at) for a in lim), tuple(a.take(at) for a in w2)
+            terms = GroupTerms(group.kind, lim, w2, 0.0, pick(m_err, where) ** 2)
+            _, norm = terms(pick(mu_true, where), pick(delta, where), pick(var_lat, where), numerator=False)
+            out[..., where] = norm
         return out
 
     def probability(self, mu_true, delta, var_lat, m_err):

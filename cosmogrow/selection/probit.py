@@ -63,7 +63,8 @@ def log_phi(x, *, overwrite_input=False):
     t = x  # the scratch buffer: t = (x - lo) / step, then its fractional part
     t -= _LO
     t *= 1.0 / _STEP
-    np.clip(t, 0.0, _N_CELLS - 1e-9, out=t)
+    np.minimum(t, _N_CELLS - 1e-9, out=t)
+    np.maximum(t, 0.0, out=t)
     cell = t.astype(np.intp)
     t -= cell
     out = _COEF[3].take(cell, mode="clip")

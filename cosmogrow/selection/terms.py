@@ -27,9 +27,10 @@ def pick(value, rows):
 
 
 def _buffer(*arrays):
+    """An empty array of the inputs' broadcast shape (quick when every shape is a suffix of the first)."""
     first = np.shape(arrays[0])
     shapes = [np.shape(a) for a in arrays[1:]]
-    if all(shape in (first, ()) for shape in shapes):
+    if all(shape == first[len(first) - len(shape):] for shape in shapes):
         return np.empty(first)
     return np.empty(np.broadcast_shapes(first, *shapes))
 
