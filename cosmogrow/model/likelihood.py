@@ -141,35 +141,48 @@ class CoupledGrowthModel:
             out = out - 0.5 * np.sum(z**2 + LOG_2PI + self._two_log_widths, axis=1)
         return out
 
-    def log_likelihood(self, theta: np.ndarray) -> np.ndarray:
-        """Log likelihood of the data, shape (n_walkers,)."""
+    def log_likelihood(self, theta: np.ndarray, batches=None) -> np.ndarray:
+        """Log likelihood of the data, shape (n_walkers,); `batches`: see `log_prob`."""
         theta = np.atleast_2d(theta)
         n_obj = len(self.design.m_obs)
         rows = max(1, _CHUNK_ELEMENTS // max(n_obj, 1))
         if self._moments is None:
-            chunk = self._log_likelihood_chunk
+            chunk, batches = self._log_likelihood_chunk, None  # element-wise: rows are independent
         elif self.selection is None:
             chunk = self._moments.log_likelihood
         else:
             chunk = self._selection_chunk
         if len(theta) <= rows:
-            return chunk(theta)
+            return chunk(theta) if batches is None else chunk(theta, batches=batches)
+        if batches is not None:
+            return np.concatenate([self.log_likelihood(part) for part in _split(theta, batches)])
         return np.concatenate([chunk(theta[i:i + rows]) for i in range(0, len(theta), rows)])
 
-    def log_prob(self, theta: np.ndarray) -> np.ndarray:
+    #: `log_prob` accepts `batches` (several calls stacked into one)
+    supports_batches = True
+
+    def log_prob(self, theta: np.ndarray, batches=None) -> np.ndarray:
         """Log posterior (unnormalised), shape (n_walkers,); vectorised for emcee.
 
         Parameters
         ----------
         theta : ndarray (n_walkers, ndim) or (ndim,), parameter vectors in `layout` order
+        batches : sequence of int, optional
+            Sizes of consecutive groups of rows to evaluate exactly as separate calls would (bit
+            for bit): the likelihood's matrix products over objects, whose summation order BLAS
+            may choose by the number of rows, are split at the group boundaries. Lets a caller
+            stack small evaluations (a point and its finite-difference neighbours) into one call.
         """
         theta = np.atleast_2d(theta)
         out = self.log_prior(theta)
         ok = np.isfinite(out)
         if ok.all():
-            out = out + self.log_likelihood(theta)
+            out = out + self.log_likelihood(theta, batches)
         elif np.any(ok):
-            out[ok] = out[ok] + self.log_likelihood(theta[ok])
+            if batches is not None:
+                batches = [int(part.sum()) for part in _split(ok, batches)]
+                batches = [size for size in batches if size] or None
+            out[ok] = out[ok] + self.log_likelihood(theta[ok], batches)
         out[~np.isfinite(out)] = -np.inf
         return out
 
@@ -229,9 +242,9 @@ class CoupledGrowthModel:
             var = sig2_obj + rows.ev_ratio
         return mu_true, delta, var_lat, var
 
-    def _selection_chunk(self, theta):
+    def _selection_chunk(self, theta, batches=None):
         """Moments for the Gaussian part plus the selection correction (no outliers)."""
-        log_like = self._moments.log_likelihood(theta)
+        log_like = self._moments.log_likelihood(theta, batches)
         if self._correction is None:
             return log_like
         mu_true, delta, var_lat, _ = self._latent(theta, self._corrected_rows)
@@ -323,17 +336,18 @@ class GaussianMoments:
         self._group_matrix = (np.eye(groups)[d.scatter_index].T.copy() if groups > 1 else None)
         self._multiplicity = np.where(self.upper[0] == self.upper[1], 1.0, 2.0)
 
-    def log_likelihood(self, theta):
+    def log_likelihood(self, theta, batches=None):
+        """Log likelihood of every row of theta; `batches`: see `CoupledGrowthModel.log_prob`."""
         model = self.model
         layout = model.layout
         sig2 = theta[:, layout.scatter] ** 2
-        sig2_obj = sig2 if self._group_matrix is None else sig2 @ self._group_matrix
+        sig2_obj = sig2 if self._group_matrix is None else _product(sig2, self._group_matrix, batches)
         if model.relation:
             var = sig2_obj + self._m_err2 + _column(theta, layout.index_beta) ** 2 * self._s_err2
         else:
             var = sig2_obj + self._ev_ratio
         log_det = np.log(var).sum(axis=1)
-        sums = np.reciprocal(var, out=var) @ self.features
+        sums = _product(np.reciprocal(var, out=var), self.features, batches)
         p = self.p
         n_cross = len(self.upper[0])
         lin = theta[:, self.linear_index]
@@ -351,6 +365,20 @@ def _offset_dummies(design):
     out = [(design.method_index == j).astype(float) for j in range(1, len(design.method_names))]
     out += [(design.host_index == j).astype(float) for j in range(1, len(design.host_type_names))]
     return out
+
+
+def _split(array, sizes):
+    """`array` cut along its first axis into consecutive pieces of `sizes` rows."""
+    return np.split(array, np.cumsum(sizes)[:-1])
+
+
+def _product(a, b, batches):
+    """a @ b; with `batches`, computed batch by batch of rows of `a` (each a fresh array), so that
+    every row comes out as in a separate product of its batch alone (BLAS may sum in another order
+    for another number of rows)."""
+    if batches is None or len(batches) == 1:
+        return a @ b
+    return np.concatenate([part.copy() @ b for part in _split(a, batches)])
 
 
 def _on_rows(rows, *arrays):

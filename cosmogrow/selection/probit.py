@@ -102,7 +102,9 @@ def log_upper_orthant(h, k, rho):
             every = select.all()
             parts = [h, k, rho, log_h, log_k] if every else [h[select], k[select], rho[select],
                                                              log_h[select], log_k[select]]
-            value = _in_blocks(branch, *parts)
+            # one quadrature order for the whole call, whatever the blocks
+            order = _order(parts[2]) if branch is _from_independent else _order(1.0)
+            value = _in_blocks(branch, order, *parts)
             if every:
                 out = value
             else:
@@ -116,19 +118,19 @@ def _order(rho):
     return next(order for bound, order in _ORDERS if np.max(rho, initial=0.0) < bound or bound == 1.0)
 
 
-def _in_blocks(function, *arrays):
-    """`function(*blocks, scratch)` on blocks of at most _BLOCK elements of the 1-d `arrays`, with
+def _in_blocks(function, order, *arrays):
+    """`function(order, *blocks, scratch)` on blocks of at most _BLOCK elements of the 1-d `arrays`, with
     two (20, _BLOCK) scratch arrays reused by every block (allocating the (nodes, n) temporaries of
     the quadrature afresh costs more than the arithmetic)."""
     n = len(arrays[0])
     size = min(n, _BLOCK)
     scratch = (np.empty(_GAUSS_LEGENDRE_MAX * size), np.empty(_GAUSS_LEGENDRE_MAX * size))
     if n <= _BLOCK:
-        return function(*arrays, scratch)
+        return function(order, *arrays, scratch)
     out = np.empty(n)
     for start in range(0, n, _BLOCK):
         part = slice(start, start + _BLOCK)
-        out[part] = function(*(a[part] for a in arrays), scratch)
+        out[part] = function(order, *(a[part] for a in arrays), scratch)
     return out
 
 
@@ -136,7 +138,7 @@ def _node_arrays(scratch, n_nodes, n):
     return tuple(buffer[:n_nodes * n].reshape(n_nodes, n) for buffer in scratch)
 
 
-def _from_independent(h, k, rho, log_h, log_k, scratch):
+def _from_independent(order, h, k, rho, log_h, log_k, scratch):
     """log[Φ(-h)Φ(-k) + (1/2π) ∫_0^rho exp(-Q(r)) / sqrt(1 - r²) dr], Q = (h²-2hkr+k²)/(2(1-r²)).
 
     r = rho t with fixed Gauss-Legendre nodes t on [0, 1] (1/sqrt(1 - r²) <= 2.7 for rho < 0.925).
@@ -144,7 +146,7 @@ def _from_independent(h, k, rho, log_h, log_k, scratch):
     r* = B / (A + sqrt(A² - B²)), A = h² + k², B = 2hk, clipped to [0, rho]), so exp never overflows.
     Node-major (nodes, n) arrays keep numpy's inner loops long; the node sum is a matrix product.
     """
-    nodes, weights = _GAUSS_LEGENDRE[_order(rho)]
+    nodes, weights = _GAUSS_LEGENDRE[order]
     t = 0.5 * (nodes + 1.0)
     a, b = h**2 + k**2, 2.0 * h * k
     root = a + np.sqrt(np.maximum(a**2 - b**2, 0.0))
@@ -164,10 +166,10 @@ def _from_independent(h, k, rho, log_h, log_k, scratch):
     return np.logaddexp(log_h + log_k, log_integral)
 
 
-def _from_identical(h, k, rho, log_h, log_k, scratch):
+def _from_identical(order, h, k, rho, log_h, log_k, scratch):
     """Φ(-max(h,k)) - (1/2π) ∫_0^acos(rho) exp(-(h-k)²/(2sin²θ) - hk/(1+cosθ)) dθ, in logs."""
     log_min = np.minimum(log_h, log_k)
-    nodes, weights = _GAUSS_LEGENDRE[_order(1.0)]
+    nodes, weights = _GAUSS_LEGENDRE[order]
     half = 0.5 * np.arccos(rho)
     theta, exponent = _node_arrays(scratch, len(nodes), len(h))
     np.multiply.outer(nodes + 1.0, half, out=theta)
