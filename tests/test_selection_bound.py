@@ -42,16 +42,18 @@ def _catalog(n=60, seed=0):
                                 method=np.where(rng.random(n) < 0.5, "dynamical", "virial"))
 
 
-@pytest.mark.parametrize("far, mid", [("o", "i"), ("io", "o"), ("ii", "oo"), ("i", "i")])
-def test_bound_correction_equals_direct(far, mid):
-    catalog = _catalog()
+@pytest.mark.parametrize("far, mid, n, walkers", [("o", "i", 60, 7), ("io", "o", 60, 7), ("ii", "oo", 60, 7),
+                                                  ("i", "i", 60, 7), ("io", "i", 1500, 40)])
+def test_bound_correction_equals_direct(far, mid, n, walkers):
+    """(The last case is large enough to be evaluated in blocks of columns.)"""
+    catalog = _catalog(n)
     selection = SelectionSet.compile({"far": SPECS[far], "mid": SPECS[mid],
                                       "near": {"kind": "sphere_of_influence"}}, catalog, Planck18)
     bound = selection.bind(catalog.log_mbh, catalog.log_mbh_err)
     rng = np.random.default_rng(1)
-    mu = rng.normal(8.5, 0.4, (7, len(catalog)))
-    var = rng.uniform(0.05, 0.2, (7, len(catalog)))
-    for delta in (0.0, rng.normal(0.0, 0.1, (7, len(catalog)))):
+    mu = rng.normal(8.5, 0.4, (walkers, n))
+    var = rng.uniform(0.05, 0.2, (walkers, n))
+    for delta in (0.0, rng.normal(0.0, 0.1, (walkers, n))):
         direct = selection.log_correction(mu, delta, var, catalog.log_mbh, catalog.log_mbh_err)
         rows = bound.rows
         fast = bound(mu[:, rows], delta if np.ndim(delta) == 0 else delta[:, rows], var[:, rows])

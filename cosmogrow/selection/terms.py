@@ -126,6 +126,10 @@ def _orthant(centre, var, lim, w2):
 class BoundCorrection:
     """The selection correction of one catalogue, bound to its observed masses and errors.
 
+    Large calls (many walkers x objects) are evaluated in blocks of columns of at most
+    _BLOCK_ELEMENTS elements: the temporaries then stay in the cache and in the heap allocator's
+    reused memory (fresh multi-page temporaries cost page faults that exceed the arithmetic).
+
     Attributes
     ----------
     rows : ndarray of int, the catalogue rows with a black-hole-mass cut, group after group; the
@@ -136,9 +140,16 @@ class BoundCorrection:
         parts, rows, start = [], [], 0
         for group in groups:
             index = np.arange(n_rows) if isinstance(group.rows, slice) else np.asarray(group.rows)
-            terms = GroupTerms(group.kind, group.lim, group.w2, pick(m_obs, group.rows),
-                               pick(m_err, group.rows) ** 2)
-            parts.append((slice(start, start + len(index)), terms))
+            lim, w2 = group.lim, group.w2
+            m_obs_g, e2 = pick(m_obs, group.rows), pick(m_err, group.rows) ** 2
+            blocks = []
+            for first in range(0, len(index), _BLOCK_COLUMNS):
+                cut = slice(first, first + _BLOCK_COLUMNS)
+                blocks.append((slice(start + first, start + min(first + _BLOCK_COLUMNS, len(index))),
+                               GroupTerms(group.kind, tuple(a[cut] for a in lim), tuple(a[cut] for a in w2),
+                                          _cut(m_obs_g, cut), _cut(e2, cut))))
+            parts.append((slice(start, start + len(index)),
+                          GroupTerms(group.kind, lim, w2, m_obs_g, e2), blocks))
             rows.append(index)
             start += len(index)
         self.rows = np.concatenate(rows) if rows else np.zeros(0, dtype=np.intp)
@@ -153,15 +164,24 @@ class BoundCorrection:
         delta : float 0.0 or ndarray like mu, mass-method offset (dex)
         var : ndarray like mu, latent variance (dex²)
         """
-        out = np.empty(np.broadcast_shapes(np.shape(mu), np.shape(delta), np.shape(var)))
-        single = len(self._parts) == 1
-        for cols, terms in self._parts:
-            if single:
-                num, norm = terms(mu, delta, var)
-            else:
-                num, norm = terms(mu[..., cols], _columns(delta, cols), var[..., cols])
-            out[..., cols] = num - norm
+        shape = np.broadcast_shapes(np.shape(mu), np.shape(delta), np.shape(var))
+        out = np.empty(shape)
+        per_column = int(np.prod(shape[:-1]))
+        for cols, terms, blocks in self._parts:
+            pieces = blocks if per_column * (cols.stop - cols.start) > _BLOCK_ELEMENTS else ((cols, terms),)
+            for part, part_terms in pieces:
+                num, norm = part_terms(mu[..., part], _columns(delta, part), var[..., part])
+                out[..., part] = num - norm
         return out
+
+
+#: Blocks of the bound correction: elements above which a call is split, and columns per block
+_BLOCK_ELEMENTS = 16384
+_BLOCK_COLUMNS = 256
+
+
+def _cut(value, cut):
+    return value if np.ndim(value) == 0 else value[cut]
 
 
 def _columns(value, cols):
