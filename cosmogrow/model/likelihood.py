@@ -20,6 +20,8 @@ from .design import (  # noqa: F401  (re-exported: the design is built with the 
     observed_host_moments)
 from .layout import OffsetGroup, ParameterLayout
 from .mean import latent_mean
+from .moments import (  # noqa: F401  (GaussianMoments re-exported)
+    LOG_2PI, GaussianMoments, column as _column, offset_dummies as _offset_dummies, split as _split)
 
 DEFAULT_PRIORS = {
     "k": (-10.0, 10.0),
@@ -29,7 +31,6 @@ DEFAULT_PRIORS = {
     "f_out": (0.0, 0.5),
     "sigma_out": (0.1, 5.0),
 }
-LOG_2PI = np.log(2.0 * np.pi)
 # Walker chunks keep temporaries near this many elements (≈ 16 MB per float array).
 _CHUNK_ELEMENTS = 2_000_000
 
@@ -296,91 +297,6 @@ class CoupledGrowthModel:
         return np.clip(theta, self.lower + 1e-3, self.upper - 1e-3)
 
 
-class GaussianMoments:
-    """Fast exact evaluation of the plain Gaussian likelihood through weighted moments.
-
-    Without selection or outliers the mean is linear in (alpha, beta, k, delta) and the weights
-    1/V_i depend on (sigma_int, beta) only, so every walker's log likelihood follows from the
-    weighted sums sum_i w_i F_i of fixed features F_i = (X_i X_i^T, X_i y_i, y_i^2): one matrix
-    product over objects instead of a dozen element-wise passes.
-    """
-
-    def __init__(self, model):
-        d = model.design
-        layout = model.layout
-        self.model = model
-        dummies = _offset_dummies(d)
-        if model.relation:
-            columns = [np.ones_like(d.x), d.s_centred + model.gamma * d.x, -d.x] + dummies
-            self.offset = float(np.mean(d.m_obs))
-            target = d.m_obs - self.offset
-            self.linear_index = ([layout.index_alpha, layout.index_beta, layout.index_k]
-                                 + list(layout.offset_indices))
-        else:
-            columns = [np.ones_like(d.x), -d.x] + dummies
-            target = d.m_obs - d.s_centred - model.gamma * d.x
-            self.offset = float(np.mean(target))
-            target = target - self.offset
-            self.linear_index = [layout.index_alpha, layout.index_k] + list(layout.offset_indices)
-        design_matrix = np.column_stack(columns)
-        p = design_matrix.shape[1]
-        self.upper = np.triu_indices(p)
-        self.p = p
-        cross = (design_matrix[:, self.upper[0]] * design_matrix[:, self.upper[1]])
-        self.features = np.column_stack([cross, design_matrix * target[:, None], target**2])
-        self.n_obj = len(target)
-        self._m_err2 = d.m_err**2
-        self._s_err2 = d.s_err**2
-        self._ev_ratio = self._m_err2 + self._s_err2
-        groups = len(d.scatter_names)
-        self._group_matrix = (np.eye(groups)[d.scatter_index].T.copy() if groups > 1 else None)
-        self._multiplicity = np.where(self.upper[0] == self.upper[1], 1.0, 2.0)
-
-    def log_likelihood(self, theta, batches=None):
-        """Log likelihood of every row of theta; `batches`: see `CoupledGrowthModel.log_prob`."""
-        model = self.model
-        layout = model.layout
-        sig2 = theta[:, layout.scatter] ** 2
-        sig2_obj = sig2 if self._group_matrix is None else _product(sig2, self._group_matrix, batches)
-        if model.relation:
-            var = sig2_obj + self._m_err2 + _column(theta, layout.index_beta) ** 2 * self._s_err2
-        else:
-            var = sig2_obj + self._ev_ratio
-        log_det = np.log(var).sum(axis=1)
-        sums = _product(np.reciprocal(var, out=var), self.features, batches)
-        p = self.p
-        n_cross = len(self.upper[0])
-        lin = theta[:, self.linear_index]
-        lin[:, 0] -= self.offset
-        # lin^T Q lin with Q assembled from its upper triangle: sum_c sums_c * (lin lin^T)[c] * mult_c
-        outer = lin[:, self.upper[0]] * lin[:, self.upper[1]]
-        quad = np.sum(sums[:, :n_cross] * outer * self._multiplicity, axis=1)
-        cross_y = np.sum(lin * sums[:, n_cross:n_cross + p], axis=1)
-        chi2 = sums[:, -1] - 2 * cross_y + quad
-        return -0.5 * (chi2 + log_det + self.n_obj * LOG_2PI)
-
-
-def _offset_dummies(design):
-    """Indicator columns of every offset parameter (methods, then host types), as in the layout."""
-    out = [(design.method_index == j).astype(float) for j in range(1, len(design.method_names))]
-    out += [(design.host_index == j).astype(float) for j in range(1, len(design.host_type_names))]
-    return out
-
-
-def _split(array, sizes):
-    """`array` cut along its first axis into consecutive pieces of `sizes` rows."""
-    return np.split(array, np.cumsum(sizes)[:-1])
-
-
-def _product(a, b, batches):
-    """a @ b; with `batches`, computed batch by batch of rows of `a` (each a fresh array), so that
-    every row comes out as in a separate product of its batch alone (BLAS may sum in another order
-    for another number of rows)."""
-    if batches is None or len(batches) == 1:
-        return a @ b
-    return np.concatenate([part.copy() @ b for part in _split(a, batches)])
-
-
 def _on_rows(rows, *arrays):
     """Each array restricted to `rows` on its last axis (scalars pass through)."""
     return [a if np.ndim(a) == 0 or np.shape(a)[-1] == 1 else a[..., rows] for a in arrays]
@@ -406,11 +322,6 @@ class _Rows:
                    m_err2=m_err2[rows], ev_ratio=(m_err2 + s_err2)[rows],
                    scatter_index=design.scatter_index[rows], method_index=design.method_index[rows],
                    host_index=design.host_index[rows])
-
-
-def _column(theta, index):
-    """Column `index` of a (n_walkers, ndim) array, kept two-dimensional for broadcasting."""
-    return theta[:, index:index + 1]
 
 
 def offset_widths(setting: float | dict, labels) -> np.ndarray:
