@@ -43,7 +43,7 @@ def _catalog(n=60, seed=0):
 
 
 @pytest.mark.parametrize("far, mid, n, walkers", [("o", "i", 60, 7), ("io", "o", 60, 7), ("ii", "oo", 60, 7),
-                                                  ("i", "i", 60, 7), ("io", "i", 1500, 40)])
+                                                  ("i", "i", 60, 7), ("io", "i", 9000, 40)])
 def test_bound_correction_equals_direct(far, mid, n, walkers):
     """(The last case is large enough to be evaluated in blocks of columns.)"""
     catalog = _catalog(n)

@@ -176,8 +176,8 @@ class BoundCorrection:
 
 
 #: Blocks of the bound correction: elements above which a call is split, and columns per block
-_BLOCK_ELEMENTS = 16384
-_BLOCK_COLUMNS = 256
+_BLOCK_ELEMENTS = 65536
+_BLOCK_COLUMNS = 2048
 
 
 def _cut(value, cut):
