@@ -7,8 +7,10 @@ thread as `cosmogrow` runs it. The plain and the selection-aware likelihood are 
 (interleaved) and each is timed per call in CPU time of this process (the figure: robust when other
 jobs share the cores) and in wall time; the minimum over the calls is kept.
 Run: .venv/bin/python analysis/bench_selection.py
-On a busy machine, glibc returning each (walkers, N) temporary to the system makes timings jump by
-up to 4x between runs; MALLOC_MMAP_THRESHOLD_=33554432 in the environment removes that noise.
+With glibc's default allocator settings, each (walkers, N) temporary may be handed back to the system
+and page-faulted in again, so the plain reference alone jumps between 0.2 and 0.9 ms from one row to
+the next; `make bench` therefore runs this script with MALLOC_MMAP_THRESHOLD_=33554432 and
+MALLOC_TRIM_THRESHOLD_=1073741824 (no page faults: the arithmetic alone, stable to a few per cent).
 """
 
 import os

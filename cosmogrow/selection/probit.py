@@ -58,15 +58,20 @@ def log_phi(x, *, overwrite_input=False):
     scalar = x.ndim == 0
     if scalar or not overwrite_input or not x.flags.writeable:
         x = np.array(x, dtype=float, ndmin=1)
-    low = x < _LO
-    x_low = x[low] if low.any() else None
+    if x.size == 0:
+        return x
+    inside = bool(x.min() >= _LO)  # False with NaN too
+    low = None if inside else x < _LO
+    x_low = x[low] if low is not None and low.any() else None
     t = x  # the scratch buffer: t = (x - lo) / step, then its fractional part
     t -= _LO
     t *= 1.0 / _STEP
-    np.minimum(t, _N_CELLS - 1e-9, out=t)
-    np.maximum(t, 0.0, out=t)
-    cell = t.astype(np.intp)
-    t -= cell
+    if not (inside and t.max() <= _N_CELLS - 1e-9):  # clamping is a no-op otherwise
+        np.minimum(t, _N_CELLS - 1e-9, out=t)
+        np.maximum(t, 0.0, out=t)
+    whole = np.floor(t)
+    t -= whole
+    cell = whole.astype(np.intp)
     out = _COEF[3].take(cell, mode="clip")
     term = np.empty_like(out)
     for power in (2, 1, 0):
