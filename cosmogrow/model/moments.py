@@ -45,6 +45,7 @@ class GaussianMoments:
         groups = len(d.scatter_names)
         self._group_matrix = (np.eye(groups)[d.scatter_index].T.copy() if groups > 1 else None)
         self._multiplicity = np.where(self.upper[0] == self.upper[1], 1.0, 2.0)
+        self._linear = np.array(self.linear_index, dtype=np.intp)
 
     def log_likelihood(self, theta, batches=None):
         """Log likelihood of every row of theta; `batches`: see `CoupledGrowthModel.log_prob`."""
@@ -60,12 +61,12 @@ class GaussianMoments:
         sums = product(np.reciprocal(var, out=var), self.features, batches)
         p = self.p
         n_cross = len(self.upper[0])
-        lin = theta[:, self.linear_index]
+        lin = theta.take(self._linear, axis=1)
         lin[:, 0] -= self.offset
         # lin^T Q lin with Q assembled from its upper triangle: sum_c sums_c * (lin lin^T)[c] * mult_c
         outer = lin[:, self.upper[0]] * lin[:, self.upper[1]]
-        quad = np.sum(sums[:, :n_cross] * outer * self._multiplicity, axis=1)
-        cross_y = np.sum(lin * sums[:, n_cross:n_cross + p], axis=1)
+        quad = (sums[:, :n_cross] * outer * self._multiplicity).sum(axis=1)
+        cross_y = (lin * sums[:, n_cross:n_cross + p]).sum(axis=1)
         chi2 = sums[:, -1] - 2 * cross_y + quad
         return -0.5 * (chi2 + log_det + self.n_obj * LOG_2PI)
 
@@ -88,7 +89,8 @@ def product(a, b, batches):
     for another number of rows)."""
     if batches is None or len(batches) == 1:
         return a @ b
-    return np.concatenate([part.copy() @ b for part in split(a, batches)])
+    edges = np.concatenate([[0], np.cumsum(batches)]).tolist()
+    return np.concatenate([a[start:stop].copy() @ b for start, stop in zip(edges[:-1], edges[1:])])
 
 
 def column(theta, index):
