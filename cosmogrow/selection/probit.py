@@ -12,8 +12,11 @@ tested against `log_ndtr`; C1-continuous, so optimisers see a smooth function). 
 no cancellation) when rho < 0.925, and from rho = 1 (Φ(-max(h, k)) minus a positive integral)
 above, the split used by Genz (2004, Statistics and Computing 14, 251) for the bivariate normal.
 Results are clipped to the bounds that hold for rho >= 0 (Slepian): Φ(-h) Φ(-k) <= P <=
-min(Φ(-h), Φ(-k)), so far-tail values stay finite. Accuracy: |error| < 1e-8 in log P for
-|h|, |k| <= 9 (tested against adaptive quadrature).
+min(Φ(-h), Φ(-k)), so far-tail values stay finite. Accuracy in log P for |h|, |k| <= 9, measured
+against 64-node quadrature of the same integrals: < 1e-8 for rho <= 0.7 and 0.8 <= rho < 0.925,
+rising to 7e-7 as rho approaches 0.8 (12 nodes) and to 1.4e-6 just above 0.925 (20 nodes from
+rho = 1); tested against adaptive quadrature and scipy's bivariate normal CDF. The quadrature runs
+on node-major (nodes, n) arrays in blocks of _BLOCK elements with reused scratch memory.
 """
 
 import numpy as np
