@@ -32,8 +32,10 @@ bench: install
 	@rm -f .bench_rows.jsonl
 	BENCH_ROWS=.bench_rows.jsonl $(BIN)/python analysis/bench_command.py
 	BENCH_ROWS=.bench_rows.jsonl $(BIN)/python analysis/bench_fit.py --max-n 100000
-	BENCH_ROWS=.bench_rows.jsonl $(BIN)/python analysis/bench_selection.py
+	BENCH_ROWS=.bench_rows.jsonl MALLOC_MMAP_THRESHOLD_=33554432 MALLOC_TRIM_THRESHOLD_=1073741824 \
+		$(BIN)/python analysis/bench_selection.py
 	BENCH_ROWS=.bench_rows.jsonl $(BIN)/python analysis/bench_campaign.py
+	BENCH_ROWS=.bench_rows.jsonl $(BIN)/python analysis/bench_fast_fit.py
 	BENCH_ROWS=.bench_rows.jsonl $(BIN)/python analysis/calib_hardcut.py --realisations 300 --mode fast
 	BENCH_ROWS=.bench_rows.jsonl $(BIN)/python analysis/calib_hardcut.py --realisations 300 --mode importance
 	$(BIN)/python analysis/bench_verdicts.py

@@ -1,23 +1,33 @@
 """Benchmark of issue 3: the selection-aware likelihood against the plain one, and the simulator.
 
-Targets: selection-aware likelihood <= 2x the plain one; simulating 10^6 hosts with selection <= 2 s.
-The likelihood is the fit's own (cosmogrow.model), evaluated for 32 walkers at once.
+Targets: selection-aware likelihood <= 2x the plain one (one cut per sample; <= 5x with two cuts on
+one sample); simulating 10^6 hosts with selection <= 2 s.
+The likelihood is the fit's own (cosmogrow.model), evaluated for 32 walkers at once, with one BLAS
+thread as `cosmogrow` runs it. The plain and the selection-aware likelihood are called alternately
+(interleaved) and each is timed per call in CPU time of this process (the figure: robust when other
+jobs share the cores) and in wall time; the minimum over the calls is kept.
 Run: .venv/bin/python analysis/bench_selection.py
-On a busy machine, glibc returning each (walkers, N) temporary to the system makes timings jump by
-up to 4x between runs; MALLOC_MMAP_THRESHOLD_=33554432 in the environment removes that noise.
+With glibc's default allocator settings, each (walkers, N) temporary may be handed back to the system
+and page-faulted in again, so the plain reference alone jumps between 0.2 and 0.9 ms from one row to
+the next; `make bench` therefore runs this script with MALLOC_MMAP_THRESHOLD_=33554432 and
+MALLOC_TRIM_THRESHOLD_=1073741824 (no page faults: the arithmetic alone, stable to a few per cent).
 """
 
-import time
+import os
 
-import numpy as np
-from astropy.cosmology import Planck18
+os.environ.setdefault("OPENBLAS_NUM_THREADS", "1")  # as the command-line tool runs
 
-from bench_table import emit, row
-from cosmogrow.data.catalog import Catalog
-from cosmogrow.config import ModelOptions
-from cosmogrow.model.likelihood import CoupledGrowthModel, build_design
-from cosmogrow.selection.compiled import SelectionSet
-from cosmogrow.simulation.population import simulate_population
+import time  # noqa: E402
+
+import numpy as np  # noqa: E402
+from astropy.cosmology import Planck18  # noqa: E402
+
+from bench_table import emit, row  # noqa: E402
+from cosmogrow.data.catalog import Catalog  # noqa: E402
+from cosmogrow.config import ModelOptions  # noqa: E402
+from cosmogrow.model.likelihood import CoupledGrowthModel, build_design  # noqa: E402
+from cosmogrow.selection.compiled import SelectionSet  # noqa: E402
+from cosmogrow.simulation.population import simulate_population  # noqa: E402
 
 #: Target ratio to the plain likelihood: 2x with one cut per sample, 5x with two cuts on one sample.
 TARGETS = {"flux x observed cut (far), two cuts": 5.0}
@@ -43,6 +53,13 @@ def make_catalog(n, seed=0):
                                 method="dynamical")
 
 
+def _timed(function):
+    """(CPU seconds, wall seconds) of one call."""
+    c0, t0 = time.process_time(), time.perf_counter()
+    function()
+    return time.process_time() - c0, time.perf_counter() - t0
+
+
 def likelihood_ratios(n=1000, walkers=32, repeat=300):
     """min over `repeat` interleaved calls of the per-object plain likelihood, the selection-aware
     one and the correction alone (interleaving keeps both under the same machine load)."""
@@ -54,31 +71,27 @@ def likelihood_ratios(n=1000, walkers=32, repeat=300):
     theta = theta + 1e-3 * np.random.default_rng(1).standard_normal(theta.shape)
     mu = np.full((walkers, n), 8.5)
     var = np.full((walkers, n), 0.1)
-    print(f"likelihood, N = {n}, {walkers} walkers; 'plain' is the plain likelihood object by object "
-          "(the reference of the target), 'moments' the plain fit's own shortcut:")
+    print(f"likelihood, N = {n}, {walkers} walkers, load average {os.getloadavg()[0]:.1f}; 'plain' is "
+          "the plain likelihood object by object (the reference of the target), 'moments' the plain "
+          "fit's own shortcut; ratios of per-call CPU time (wall time in brackets):")
     rows = []
     for name, selections in SELECTIONS.items():
         selection = SelectionSet.compile(selections, catalog, Planck18)
         model = CoupledGrowthModel(design, options, selection=selection)
-        times = np.zeros((repeat, 4))
-        for i in range(repeat):
-            t0 = time.perf_counter()
-            plain._log_likelihood_chunk(theta)
-            t1 = time.perf_counter()
-            plain.log_likelihood(theta)
-            t2 = time.perf_counter()
-            model.log_likelihood(theta)
-            t3 = time.perf_counter()
-            selection.log_correction(mu, 0.0, var, catalog.log_mbh, catalog.log_mbh_err)
-            times[i] = t1 - t0, t2 - t1, t3 - t2, time.perf_counter() - t3
-        t_plain, t_moments, t_sel, t_corr = times.min(axis=0) * 1e3
-        print(f"  {name:38s}: plain {t_plain:.3f} ms, moments {t_moments:.3f} ms, selection-aware "
-              f"{t_sel:.3f} ms = {t_sel / t_plain:.2f}x plain (target <= 2x), {t_sel / t_moments:.1f}x "
-              f"moments; log_correction alone {t_corr:.3f} ms")
+        calls = (lambda: plain._log_likelihood_chunk(theta), lambda: plain.log_likelihood(theta),
+                 lambda: model.log_likelihood(theta),
+                 lambda: selection.log_correction(mu, 0.0, var, catalog.log_mbh, catalog.log_mbh_err))
+        times = np.array([[_timed(call) for call in calls] for _ in range(repeat)])  # (repeat, 4, 2)
+        (c_plain, c_moments, c_sel, c_corr), (w_plain, _, w_sel, _) = times.min(axis=0).T * 1e3
+        ratio = c_sel / c_plain
+        print(f"  {name:38s}: plain {c_plain:.3f} ms, moments {c_moments:.3f} ms, selection-aware "
+              f"{c_sel:.3f} ms = {ratio:.2f}x plain ({w_sel / w_plain:.2f}x in wall time), "
+              f"{c_sel / c_moments:.1f}x moments; log_correction alone {c_corr:.3f} ms")
         target = TARGETS.get(name, 2.0)
-        rows.append(row(f"selection-aware likelihood vs plain, {name}, N = {n}, {walkers} walkers",
-                        f"≤ {target:g}×", f"**{t_sel / t_plain:.2f}×** ({t_sel / t_moments:.1f}× the moments "
-                        "shortcut)", t_sel / t_plain <= target))
+        rows.append(row(f"selection-aware likelihood vs plain, {name}, N = {n}, {walkers} walkers "
+                        f"(CPU time per call, interleaved; load {os.getloadavg()[0]:.1f})",
+                        f"≤ {target:g}×", f"**{ratio:.2f}×** (wall {w_sel / w_plain:.2f}×; "
+                        f"{c_sel / c_moments:.1f}× the moments shortcut)", ratio <= target))
     return rows
 
 

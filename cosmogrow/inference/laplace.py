@@ -33,12 +33,31 @@ def _steps(model, theta, scale):
 
 def gradient(model, theta, scale=None):
     """Central-difference gradient of log_prob in one batched call."""
+    points, h = _gradient_points(model, theta, scale)
+    return _differences(model.log_prob(points), h)
+
+
+def value_and_gradient(model, theta):
+    """log_prob at `theta` and `gradient(model, theta)`, in one call of the model when it accepts
+    `batches` (then bit for bit the values of the two separate calls), else in two."""
+    points, h = _gradient_points(model, theta, None)
+    if not getattr(model, "supports_batches", False):
+        return model.log_prob(theta[None, :])[0], _differences(model.log_prob(points), h)
+    values = model.log_prob(np.vstack([theta[None, :], points]), batches=(1, len(points)))
+    return values[0], _differences(values[1:], h)
+
+
+def _gradient_points(model, theta, scale):
     ndim = len(theta)
     h = _steps(model, theta, 1e-5 * np.maximum(np.abs(theta), 1.0) if scale is None else scale)
     points = np.repeat(theta[None, :], 2 * ndim, axis=0)
     points[np.arange(ndim), np.arange(ndim)] += h
     points[ndim + np.arange(ndim), np.arange(ndim)] -= h
-    values = model.log_prob(points)
+    return points, h
+
+
+def _differences(values, h):
+    ndim = len(h)
     return (values[:ndim] - values[ndim:]) / (2 * h)
 
 
@@ -106,10 +125,10 @@ def find_map(model, start=None, fixed=None):
     def negative(params):
         theta = theta0.copy()
         theta[free] = params
-        value = model.log_prob(theta[None, :])[0]
+        value, slope = value_and_gradient(model, theta)
         if not np.isfinite(value):
             return 1e300, np.zeros_like(params)
-        return -value, -gradient(model, theta)[free]
+        return -value, -slope[free]
 
     bounds = list(zip(np.where(np.isfinite(low), low, None), np.where(np.isfinite(high), high, None)))
     best = None

@@ -28,17 +28,18 @@ def _selected_host_log_like(params, rows, parts, model, catalog, selection, cent
     shrink = tau2 / total_var
     s_true = shrink * s_obs + (1 - shrink) * centre
     beta, x, sigma2 = parts["beta"], model.design.x[rows], parts["sigma2"][rows]
-    n_params, n = len(params), len(model.design.x)
+    n_params = len(params)
     # conditional (given s_obs) and parent latent masses stacked, for one selection call
-    mu = np.zeros((2 * n_params, n))
-    var = np.ones((2 * n_params, n))
     # the latent mean of model.mean.latent_mean, summed in this order since the pinned fits were made
     base = parts["alpha"] - parts["k_eff"] * x + parts["host_offset"][rows]
-    mu[:n_params, rows] = base + beta * (s_true - centred_pivot)
-    var[:n_params, rows] = sigma2 + beta**2 * shrink * err2
-    mu[n_params:, rows] = base + beta * (centre - centred_pivot)
-    var[n_params:, rows] = sigma2 + beta**2 * tau2
-    log_sel = selection.log_probability(mu, parts["delta"], var, model.design.m_err)[:, rows].sum(axis=1)
+    shape = (n_params, len(rows))
+    mu = np.concatenate([np.broadcast_to(base + beta * (s_true - centred_pivot), shape),
+                         np.broadcast_to(base + beta * (centre - centred_pivot), shape)])
+    var = np.concatenate([np.broadcast_to(sigma2 + beta**2 * shrink * err2, shape),
+                          np.broadcast_to(sigma2 + beta**2 * tau2, shape)])
+    log_sel = selection.log_probability(mu, parts["delta"][rows], var, model.design.m_err[rows], rows=rows)
+    # summed column by column (Fortran order), as the pinned fits were made
+    log_sel = np.asfortranarray(log_sel).sum(axis=1)
     return log_hosts + log_sel[:n_params] - log_sel[n_params:]
 
 

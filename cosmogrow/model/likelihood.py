@@ -10,6 +10,8 @@ With a selection set, each object's likelihood is conditioned on its selection (
 never validates its input data (the catalogue did) and returns -inf outside the prior.
 """
 
+from dataclasses import dataclass
+
 import numpy as np
 
 from ..errors import ConfigError
@@ -18,6 +20,8 @@ from .design import (  # noqa: F401  (re-exported: the design is built with the 
     observed_host_moments)
 from .layout import OffsetGroup, ParameterLayout
 from .mean import latent_mean
+from .moments import (  # noqa: F401  (GaussianMoments re-exported)
+    LOG_2PI, GaussianMoments, column as _column, offset_dummies as _offset_dummies, split as _split)
 
 DEFAULT_PRIORS = {
     "k": (-10.0, 10.0),
@@ -27,7 +31,6 @@ DEFAULT_PRIORS = {
     "f_out": (0.0, 0.5),
     "sigma_out": (0.1, 5.0),
 }
-LOG_2PI = np.log(2.0 * np.pi)
 # Walker chunks keep temporaries near this many elements (≈ 16 MB per float array).
 _CHUNK_ELEMENTS = 2_000_000
 
@@ -67,6 +70,12 @@ class CoupledGrowthModel:
         self._ev_ratio = design.m_err**2 + design.s_err**2
         self._m_err2 = design.m_err**2
         self._s_err2 = design.s_err**2
+        self._all_rows = _Rows.of(design)
+        # the selection correction bound to the data, evaluated on the rows it corrects only
+        self._correction = None
+        if self.selection is not None and self.selection.corrects_likelihood:
+            self._correction = self.selection.bind(design.m_obs, design.m_err)
+            self._corrected_rows = _Rows.of(design, self._correction.rows)
         self.host_priors = dict(host_priors or {})
         self.map_start = None if map_start is None else np.array(map_start, dtype=float)
         # Without outliers the Gaussian part always goes through weighted moments; a selection
@@ -91,7 +100,11 @@ class CoupledGrowthModel:
                                       offset_groups=groups, outliers=bool(self.options.outliers))
         self.lower, self.upper = self.layout.bounds(self.priors)
         self.offset_widths = np.concatenate(widths)
+        uniform = np.isfinite(self.lower) & np.isfinite(self.upper)
+        self._log_uniform_volume = np.sum(np.log(self.upper[uniform] - self.lower[uniform]))
+        self._two_log_widths = 2 * np.log(self.offset_widths)
         self._host_offsets = len(d.host_type_names) > 1
+        self._method_offsets = len(self.layout.group("method").free_labels) > 0
 
     @property
     def names(self) -> tuple:
@@ -122,39 +135,55 @@ class CoupledGrowthModel:
         theta = np.atleast_2d(theta)
         inside = np.all((theta > self.lower) & (theta < self.upper), axis=1)
         out = np.where(inside, 0.0, -np.inf)
-        uniform = np.isfinite(self.lower) & np.isfinite(self.upper)
-        out = out - np.sum(np.log(self.upper[uniform] - self.lower[uniform]))
+        out = out - self._log_uniform_volume
         offsets = self.layout.offsets
         if offsets.stop > offsets.start:
             z = theta[:, offsets] / self.offset_widths
-            out = out - 0.5 * np.sum(z**2 + LOG_2PI + 2 * np.log(self.offset_widths), axis=1)
+            out = out - 0.5 * np.sum(z**2 + LOG_2PI + self._two_log_widths, axis=1)
         return out
 
-    def log_likelihood(self, theta: np.ndarray) -> np.ndarray:
-        """Log likelihood of the data, shape (n_walkers,)."""
+    def log_likelihood(self, theta: np.ndarray, batches=None) -> np.ndarray:
+        """Log likelihood of the data, shape (n_walkers,); `batches`: see `log_prob`."""
         theta = np.atleast_2d(theta)
         n_obj = len(self.design.m_obs)
         rows = max(1, _CHUNK_ELEMENTS // max(n_obj, 1))
         if self._moments is None:
-            chunk = self._log_likelihood_chunk
+            chunk, batches = self._log_likelihood_chunk, None  # element-wise: rows are independent
         elif self.selection is None:
             chunk = self._moments.log_likelihood
         else:
             chunk = self._selection_chunk
+        if len(theta) <= rows:
+            return chunk(theta) if batches is None else chunk(theta, batches=batches)
+        if batches is not None:
+            return np.concatenate([self.log_likelihood(part) for part in _split(theta, batches)])
         return np.concatenate([chunk(theta[i:i + rows]) for i in range(0, len(theta), rows)])
 
-    def log_prob(self, theta: np.ndarray) -> np.ndarray:
+    #: `log_prob` accepts `batches` (several calls stacked into one)
+    supports_batches = True
+
+    def log_prob(self, theta: np.ndarray, batches=None) -> np.ndarray:
         """Log posterior (unnormalised), shape (n_walkers,); vectorised for emcee.
 
         Parameters
         ----------
         theta : ndarray (n_walkers, ndim) or (ndim,), parameter vectors in `layout` order
+        batches : sequence of int, optional
+            Sizes of consecutive groups of rows to evaluate exactly as separate calls would (bit
+            for bit): the likelihood's matrix products over objects, whose summation order BLAS
+            may choose by the number of rows, are split at the group boundaries. Lets a caller
+            stack small evaluations (a point and its finite-difference neighbours) into one call.
         """
         theta = np.atleast_2d(theta)
         out = self.log_prior(theta)
         ok = np.isfinite(out)
-        if np.any(ok):
-            out[ok] = out[ok] + self.log_likelihood(theta[ok])
+        if ok.all():
+            out = out + self.log_likelihood(theta, batches)
+        elif np.any(ok):
+            if batches is not None:
+                batches = [int(part.sum()) for part in _split(ok, batches)]
+                batches = [size for size in batches if size] or None
+            out[ok] = out[ok] + self.log_likelihood(theta[ok], batches)
         out[~np.isfinite(out)] = -np.inf
         return out
 
@@ -181,43 +210,53 @@ class CoupledGrowthModel:
     def latent_mean(self, theta) -> np.ndarray:
         """Mean latent log M_BH (log10 Msun) at the observed epoch, shape (n_walkers, N): the
         shared forward model `model.mean.latent_mean` with this model's hosts and offsets."""
-        theta = np.atleast_2d(theta)
-        layout, d = self.layout, self.design
+        return self._mean(np.atleast_2d(theta), self._all_rows)
+
+    def _mean(self, theta, rows):
+        layout = self.layout
         beta = _column(theta, layout.index_beta) if self.relation else 1.0
         k_eff = _column(theta, layout.index_k) - beta * self.gamma
         # a host-type offset is a real shift of the latent mass, seen by a selection on it
-        host = (layout.per_object_offsets(theta, "host_type", d.host_index)
+        host = (layout.per_object_offsets(theta, "host_type", rows.host_index)
                 if self._host_offsets else None)
-        return latent_mean(_column(theta, layout.index_alpha), beta, k_eff, d.s_centred, d.x,
+        return latent_mean(_column(theta, layout.index_alpha), beta, k_eff, rows.s_centred, rows.x,
                            host_offset=host)
 
-    def _latent(self, theta):
+    def _latent(self, theta, rows=None):
         """Per object and walker: latent mean mu_true, offset delta, latent variance var_lat and the
-        total variance of m_obs (docs/method.md#model)."""
-        d = self.design
+        total variance of m_obs (docs/method.md#model), on `rows` (a `_Rows`; default all rows)."""
+        rows = self._all_rows if rows is None else rows
         layout = self.layout
         beta = _column(theta, layout.index_beta) if self.relation else 1.0
         sig2 = theta[:, layout.scatter] ** 2
-        sig2_obj = sig2 if sig2.shape[1] == 1 else sig2[:, d.scatter_index]
-        if len(layout.group("method").free_labels):
-            delta = layout.per_object_offsets(theta, "method", d.method_index)
+        sig2_obj = sig2 if sig2.shape[1] == 1 else sig2[:, rows.scatter_index]
+        if self._method_offsets:
+            delta = layout.per_object_offsets(theta, "method", rows.method_index)
         else:
             delta = 0.0
-        mu_true = self.latent_mean(theta)
+        mu_true = self._mean(theta, rows)
         if self.relation:
-            var_lat = sig2_obj + beta**2 * self._s_err2
-            var = var_lat + self._m_err2
+            var_lat = sig2_obj + beta**2 * rows.s_err2
+            var = var_lat + rows.m_err2
         else:
-            var_lat = sig2_obj + self._s_err2
-            var = sig2_obj + self._ev_ratio
+            var_lat = sig2_obj + rows.s_err2
+            var = sig2_obj + rows.ev_ratio
         return mu_true, delta, var_lat, var
 
-    def _selection_chunk(self, theta):
+    def _selection_chunk(self, theta, batches=None):
         """Moments for the Gaussian part plus the selection correction (no outliers)."""
-        d = self.design
-        mu_true, delta, var_lat, _ = self._latent(theta)
-        correction = self.selection.log_correction(mu_true, delta, var_lat, d.m_obs, d.m_err)
-        return self._moments.log_likelihood(theta) + correction.sum(axis=1)
+        log_like = self._moments.log_likelihood(theta, batches)
+        if self._correction is None:
+            return log_like
+        mu_true, delta, var_lat, _ = self._latent(theta, self._corrected_rows)
+        correction = self._correction(mu_true, delta, var_lat)
+        rows = self._correction.rows
+        if len(rows) != len(self.design.m_obs) or np.any(rows[1:] < rows[:-1]):
+            # summed over every object in catalogue order (zeros elsewhere), as the pinned fits were made
+            every = np.zeros((len(theta), len(self.design.m_obs)))
+            every[:, rows] = correction
+            correction = every
+        return log_like + correction.sum(axis=1)
 
     def _log_likelihood_chunk(self, theta, reduce=True):
         d = self.design
@@ -229,8 +268,9 @@ class CoupledGrowthModel:
             var_out = var + _column(theta, self.layout.index_sigma_out) ** 2
             log_out = -0.5 * (resid2 / var_out + np.log(var_out) + LOG_2PI)
             log_like = np.logaddexp(np.log1p(-f_out) + log_like, np.log(f_out) + log_out)
-        if self.selection is not None:
-            log_like = log_like + self.selection.log_correction(mu_true, delta, var_lat, d.m_obs, d.m_err)
+        if self._correction is not None:
+            rows = self._correction.rows
+            log_like[:, rows] += self._correction(*_on_rows(rows, mu_true, delta, var_lat))
         return log_like.sum(axis=1) if reduce else log_like
 
     # ----- starting point ---------------------------------------------------------------
@@ -257,79 +297,31 @@ class CoupledGrowthModel:
         return np.clip(theta, self.lower + 1e-3, self.upper - 1e-3)
 
 
-class GaussianMoments:
-    """Fast exact evaluation of the plain Gaussian likelihood through weighted moments.
-
-    Without selection or outliers the mean is linear in (alpha, beta, k, delta) and the weights
-    1/V_i depend on (sigma_int, beta) only, so every walker's log likelihood follows from the
-    weighted sums sum_i w_i F_i of fixed features F_i = (X_i X_i^T, X_i y_i, y_i^2): one matrix
-    product over objects instead of a dozen element-wise passes.
-    """
-
-    def __init__(self, model):
-        d = model.design
-        layout = model.layout
-        self.model = model
-        dummies = _offset_dummies(d)
-        if model.relation:
-            columns = [np.ones_like(d.x), d.s_centred + model.gamma * d.x, -d.x] + dummies
-            self.offset = float(np.mean(d.m_obs))
-            target = d.m_obs - self.offset
-            self.linear_index = ([layout.index_alpha, layout.index_beta, layout.index_k]
-                                 + list(layout.offset_indices))
-        else:
-            columns = [np.ones_like(d.x), -d.x] + dummies
-            target = d.m_obs - d.s_centred - model.gamma * d.x
-            self.offset = float(np.mean(target))
-            target = target - self.offset
-            self.linear_index = [layout.index_alpha, layout.index_k] + list(layout.offset_indices)
-        design_matrix = np.column_stack(columns)
-        p = design_matrix.shape[1]
-        self.upper = np.triu_indices(p)
-        self.p = p
-        cross = (design_matrix[:, self.upper[0]] * design_matrix[:, self.upper[1]])
-        self.features = np.column_stack([cross, design_matrix * target[:, None], target**2])
-        self.n_obj = len(target)
-        self._m_err2 = d.m_err**2
-        self._s_err2 = d.s_err**2
-        self._ev_ratio = self._m_err2 + self._s_err2
-        groups = len(d.scatter_names)
-        self._group_matrix = (np.eye(groups)[d.scatter_index].T.copy() if groups > 1 else None)
-        self._multiplicity = np.where(self.upper[0] == self.upper[1], 1.0, 2.0)
-
-    def log_likelihood(self, theta):
-        model = self.model
-        layout = model.layout
-        sig2 = theta[:, layout.scatter] ** 2
-        sig2_obj = sig2 if self._group_matrix is None else sig2 @ self._group_matrix
-        if model.relation:
-            var = sig2_obj + self._m_err2 + _column(theta, layout.index_beta) ** 2 * self._s_err2
-        else:
-            var = sig2_obj + self._ev_ratio
-        log_det = np.log(var).sum(axis=1)
-        sums = np.reciprocal(var, out=var) @ self.features
-        p = self.p
-        n_cross = len(self.upper[0])
-        lin = theta[:, self.linear_index]
-        lin[:, 0] -= self.offset
-        # lin^T Q lin with Q assembled from its upper triangle: sum_c sums_c * (lin lin^T)[c] * mult_c
-        outer = lin[:, self.upper[0]] * lin[:, self.upper[1]]
-        quad = np.sum(sums[:, :n_cross] * outer * self._multiplicity, axis=1)
-        cross_y = np.sum(lin * sums[:, n_cross:n_cross + p], axis=1)
-        chi2 = sums[:, -1] - 2 * cross_y + quad
-        return -0.5 * (chi2 + log_det + self.n_obj * LOG_2PI)
+def _on_rows(rows, *arrays):
+    """Each array restricted to `rows` on its last axis (scalars pass through)."""
+    return [a if np.ndim(a) == 0 or np.shape(a)[-1] == 1 else a[..., rows] for a in arrays]
 
 
-def _offset_dummies(design):
-    """Indicator columns of every offset parameter (methods, then host types), as in the layout."""
-    out = [(design.method_index == j).astype(float) for j in range(1, len(design.method_names))]
-    out += [(design.host_index == j).astype(float) for j in range(1, len(design.host_type_names))]
-    return out
+@dataclass(frozen=True)
+class _Rows:
+    """The design arrays the latent mean and variance need, on a subset of rows."""
 
+    s_centred: np.ndarray
+    x: np.ndarray
+    s_err2: np.ndarray
+    m_err2: np.ndarray
+    ev_ratio: np.ndarray
+    scatter_index: np.ndarray
+    method_index: np.ndarray
+    host_index: np.ndarray
 
-def _column(theta, index):
-    """Column `index` of a (n_walkers, ndim) array, kept two-dimensional for broadcasting."""
-    return theta[:, index:index + 1]
+    @classmethod
+    def of(cls, design, rows=slice(None)):
+        m_err2, s_err2 = design.m_err**2, design.s_err**2
+        return cls(s_centred=design.s_centred[rows], x=design.x[rows], s_err2=s_err2[rows],
+                   m_err2=m_err2[rows], ev_ratio=(m_err2 + s_err2)[rows],
+                   scatter_index=design.scatter_index[rows], method_index=design.method_index[rows],
+                   host_index=design.host_index[rows])
 
 
 def offset_widths(setting: float | dict, labels) -> np.ndarray:

@@ -21,8 +21,8 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..errors import ConfigError
-from .probit import log_phi, log_upper_orthant
 from ..seeding import make_rng
+from .terms import BoundCorrection, GroupTerms, pick
 from .physics import (  # noqa: F401  (re-exported API)
     SELECTION_KINDS, FluxLimit, HostMassCut, MassCut, SphereOfInfluence, build_selection,
     describe_selection)
@@ -39,82 +39,6 @@ class _Group:
     rows: object  # slice(None) when the group is the whole catalogue, else an index array
     lim: tuple  # per cut: threshold per object, log10 Msun
     w2: tuple  # per cut: width² per object, dex²
-
-
-def _pick(value, rows):
-    value = np.asarray(value, dtype=float)
-    if isinstance(rows, slice) or value.ndim == 0 or value.shape[-1] == 1:
-        return value
-    return value.take(rows, axis=-1)
-
-
-def _group_terms(group, mu, delta, var, m_obs, e2, numerator=True):
-    """(log numerator factor, log normaliser) of one group; the numerator is 0 when θ-free."""
-    kind, lim, w2 = group.kind, group.lim, group.w2
-    num = 0.0
-    if kind == "o":
-        spread = np.add(var, e2 + w2[0], out=_buffer(mu, delta, var, e2, lim[0]))
-        np.sqrt(spread, out=spread)
-        return num, log_phi(np.divide(mu + (delta - lim[0]), spread, out=spread), overwrite_input=True)
-    if kind == "oo":
-        var1, var2 = var + e2 + w2[0], var + e2 + w2[1]
-        rho = (var + e2) / np.sqrt(var1 * var2)
-        centre = mu + delta
-        return num, log_upper_orthant((lim[0] - centre) / np.sqrt(var1),
-                                      (lim[1] - centre) / np.sqrt(var2), rho)
-    if kind == "i":
-        return _single_intrinsic(mu, delta, var, m_obs, e2, lim[0], w2[0], numerator)
-    if numerator:
-        total = var + e2
-        v = var * e2 / total
-        mu_p = (mu * e2 + (m_obs - delta) * var) / total
-        if kind == "ii":
-            num = _orthant(mu_p, v, lim, w2)
-        else:  # "io": one intrinsic cut in the numerator
-            num = log_phi((mu_p - lim[0]) / np.sqrt(v + w2[0]))
-    if kind == "ii":
-        return num, _orthant(mu, var, lim, w2)
-    var1, var2 = var + w2[0], var + e2 + w2[1]  # "io": intrinsic first, observed second
-    rho = var / np.sqrt(var1 * var2)
-    return num, log_upper_orthant((lim[0] - mu) / np.sqrt(var1),
-                                  (lim[1] - mu - delta) / np.sqrt(var2), rho)
-
-
-def _buffer(*arrays):
-    return np.empty(np.broadcast_shapes(*(np.shape(a) for a in arrays)))
-
-
-def _single_intrinsic(mu, delta, var, m_obs, e2, lim, w2, numerator):
-    """One intrinsic cut: (log Φ((mu_p - l)/sqrt(v + w²)), log Φ((mu - l)/sqrt(var + w²))).
-
-    mu_p = (mu e² + (m_obs - delta) var)/T and v = var e²/T with T = var + e², rearranged as
-    ((mu - l) e² + (m_obs - delta - l) var) / sqrt(T (var e² + w² T)); written with in-place
-    operations because allocating (n_walkers, N) temporaries costs as much as the arithmetic.
-    """
-    above = np.subtract(mu, lim, out=_buffer(mu, delta, var, m_obs, e2, lim))
-    total = np.add(var, e2, out=np.empty_like(above))
-    num = 0.0
-    if numerator:
-        spread = np.multiply(total, w2, out=np.empty_like(above))
-        spread += var * e2
-        spread *= total
-        np.sqrt(spread, out=spread)
-        arg = np.multiply(above, e2, out=total)
-        arg += (m_obs - delta - lim) * var
-        arg /= spread
-        num = log_phi(arg, overwrite_input=True)
-        total = spread
-    np.add(var, w2, out=total)
-    np.sqrt(total, out=total)
-    above /= total
-    return num, log_phi(above, overwrite_input=True)
-
-
-def _orthant(centre, var, lim, w2):
-    """log P(two probit cuts on one variable ~ N(centre, var))."""
-    var1, var2 = var + w2[0], var + w2[1]
-    rho = var / np.sqrt(var1 * var2)
-    return log_upper_orthant((lim[0] - centre) / np.sqrt(var1), (lim[1] - centre) / np.sqrt(var2), rho)
 
 
 class SelectionSet:
@@ -137,6 +61,13 @@ class SelectionSet:
         self._slot_on, self._slot_lim, self._slot_width = slots
         self._log_mstar = log_mstar
         self._groups = groups
+        # each row's group (-1: none) and its position within the group's arrays
+        self._row_group = np.full(n_rows, -1)
+        self._row_position = np.zeros(n_rows, dtype=np.intp)
+        for i, group in enumerate(groups):
+            index = np.arange(n_rows) if isinstance(group.rows, slice) else group.rows
+            self._row_group[index] = i
+            self._row_position[index] = np.arange(len(index))
         self.rows_failing_hard_cuts = failing
         host = (self._slot_on == _HOST) & (log_mstar[None, :] < self._slot_lim)
         self.host_pass = ~np.any(host, axis=0)
@@ -240,23 +171,34 @@ class SelectionSet:
         out = np.zeros(shape)
         for group in self._groups:
             rows = group.rows
-            e2 = _pick(m_err, rows) ** 2
-            num, norm = _group_terms(group, _pick(mu_true, rows), _pick(delta, rows),
-                                     _pick(var_lat, rows), _pick(m_obs, rows), e2)
+            terms = GroupTerms(group.kind, group.lim, group.w2, pick(m_obs, rows), pick(m_err, rows) ** 2)
+            num, norm = terms(pick(mu_true, rows), pick(delta, rows), pick(var_lat, rows))
             out[..., rows] = num - norm
         return out
 
-    def log_probability(self, mu_true, delta, var_lat, m_err):
-        """log P(S | s, z) from the black-hole-mass cuts alone (the likelihood's normaliser)."""
-        shape = np.broadcast_shapes(*(np.shape(a) for a in (mu_true, delta, var_lat, m_err)),
-                                    (self.n_rows,))
+    def bind(self, m_obs, m_err) -> BoundCorrection:
+        """The correction bound to fixed data (m_obs, m_err: arrays (N,), log10 Msun and dex), with
+        every parameter-free quantity precomputed: `BoundCorrection(mu, delta, var)` on its
+        `rows` equals `log_correction(...)[..., rows]`, bit for bit."""
+        return BoundCorrection(self._groups, m_obs, m_err, self.n_rows)
+
+    def log_probability(self, mu_true, delta, var_lat, m_err, rows=None):
+        """log P(S | s, z) from the black-hole-mass cuts alone (the likelihood's normaliser).
+
+        With `rows` (catalogue row indices), the inputs hold those rows on their last axis and so
+        does the result; else every row."""
+        n = self.n_rows if rows is None else len(rows)
+        shape = np.broadcast_shapes(*(np.shape(a) for a in (mu_true, delta, var_lat, m_err)), (n,))
         out = np.zeros(shape)
-        for group in self._groups:
-            rows = group.rows
-            _, norm = _group_terms(group, _pick(mu_true, rows), _pick(delta, rows),
-                                   _pick(var_lat, rows), 0.0, _pick(m_err, rows) ** 2,
-                                   numerator=False)
-            out[..., rows] = norm
+        for i, group in enumerate(self._groups):
+            lim, w2, where = group.lim, group.w2, group.rows
+            if rows is not None:
+                where = np.flatnonzero(self._row_group[rows] == i)
+                at = self._row_position[np.asarray(rows)[where]]
+                lim, w2 = tuple(a.take(at) for a in lim), tuple(a.take(at) for a in w2)
+            terms = GroupTerms(group.kind, lim, w2, 0.0, pick(m_err, where) ** 2)
+            _, norm = terms(pick(mu_true, where), pick(delta, where), pick(var_lat, where), numerator=False)
+            out[..., where] = norm
         return out
 
     def probability(self, mu_true, delta, var_lat, m_err):

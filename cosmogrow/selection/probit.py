@@ -12,8 +12,11 @@ tested against `log_ndtr`; C1-continuous, so optimisers see a smooth function). 
 no cancellation) when rho < 0.925, and from rho = 1 (Φ(-max(h, k)) minus a positive integral)
 above, the split used by Genz (2004, Statistics and Computing 14, 251) for the bivariate normal.
 Results are clipped to the bounds that hold for rho >= 0 (Slepian): Φ(-h) Φ(-k) <= P <=
-min(Φ(-h), Φ(-k)), so far-tail values stay finite. Accuracy: |error| < 1e-8 in log P for
-|h|, |k| <= 9 (tested against adaptive quadrature).
+min(Φ(-h), Φ(-k)), so far-tail values stay finite. Accuracy in log P for |h|, |k| <= 9, measured
+against 64-node quadrature of the same integrals: < 1e-8 for rho <= 0.7 and 0.8 <= rho < 0.925,
+rising to 7e-7 as rho approaches 0.8 (12 nodes) and to 1.4e-6 just above 0.925 (20 nodes from
+rho = 1); tested against adaptive quadrature and scipy's bivariate normal CDF. The quadrature runs
+on node-major (nodes, n) arrays in blocks of _BLOCK elements with reused scratch memory.
 """
 
 import numpy as np
@@ -23,6 +26,7 @@ _LO, _HI, _STEP = -40.0, 10.0, 1.0 / 64.0
 _RHO_SWITCH = 0.925
 # Gauss-Legendre orders by the largest correlation in a call (12 nodes suffice below 0.8)
 _ORDERS = ((0.8, 12), (1.0, 20))
+_BLOCK = 8192  # elements per block of the orthant quadrature
 
 
 def _hermite_table():
@@ -37,6 +41,7 @@ def _hermite_table():
 
 _COEF, _N_CELLS = _hermite_table()
 _GAUSS_LEGENDRE = {order: roots_legendre(order) for _, order in _ORDERS}
+_GAUSS_LEGENDRE_MAX = max(_GAUSS_LEGENDRE)
 
 
 def log_phi(x, *, overwrite_input=False):
@@ -56,14 +61,20 @@ def log_phi(x, *, overwrite_input=False):
     scalar = x.ndim == 0
     if scalar or not overwrite_input or not x.flags.writeable:
         x = np.array(x, dtype=float, ndmin=1)
-    low = x < _LO
-    x_low = x[low] if low.any() else None
+    if x.size == 0:
+        return x
+    inside = bool(x.min() >= _LO)  # False with NaN too
+    low = None if inside else x < _LO
+    x_low = x[low] if low is not None and low.any() else None
     t = x  # the scratch buffer: t = (x - lo) / step, then its fractional part
     t -= _LO
     t *= 1.0 / _STEP
-    np.clip(t, 0.0, _N_CELLS - 1e-9, out=t)
-    cell = t.astype(np.intp)
-    t -= cell
+    if not (inside and t.max() <= _N_CELLS - 1e-9):  # clamping is a no-op otherwise
+        np.minimum(t, _N_CELLS - 1e-9, out=t)
+        np.maximum(t, 0.0, out=t)
+    whole = np.floor(t)
+    t -= whole
+    cell = whole.astype(np.intp)
     out = _COEF[3].take(cell, mode="clip")
     term = np.empty_like(out)
     for power in (2, 1, 0):
@@ -93,14 +104,21 @@ def log_upper_orthant(h, k, rho):
     out = np.empty(h.shape)
     high = rho >= _RHO_SWITCH
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
-        low = ~high
-        if low.any():
-            out[low] = _from_independent(h[low], k[low], rho[low], log_h[low] + log_k[low])
-        if high.any():
-            out[high] = _from_identical(h[high], k[high], rho[high],
-                                        np.minimum(log_h[high], log_k[high]))
-    out = np.nan_to_num(out, nan=-np.inf)
-    out = np.clip(out, log_h + log_k, np.minimum(log_h, log_k))
+        for branch, select in ((_from_independent, ~high), (_from_identical, high)):
+            if not select.any():
+                continue
+            every = select.all()
+            parts = [h, k, rho, log_h, log_k] if every else [h[select], k[select], rho[select],
+                                                             log_h[select], log_k[select]]
+            # one quadrature order for the whole call, whatever the blocks
+            order = _order(parts[2]) if branch is _from_independent else _order(1.0)
+            value = _in_blocks(branch, order, *parts)
+            if every:
+                out = value
+            else:
+                out[select] = value
+    out[np.isnan(out)] = -np.inf
+    np.clip(out, log_h + log_k, np.minimum(log_h, log_k), out=out)
     return out.reshape(shape)
 
 
@@ -108,48 +126,73 @@ def _order(rho):
     return next(order for bound, order in _ORDERS if np.max(rho, initial=0.0) < bound or bound == 1.0)
 
 
-def _logsumexp_rows(terms):
-    top = np.max(terms, axis=1)
-    top = np.where(np.isfinite(top), top, 0.0)
-    return top + np.log(np.sum(np.exp(terms - top[:, None]), axis=1))
+def _in_blocks(function, order, *arrays):
+    """`function(order, *blocks, scratch)` on blocks of at most _BLOCK elements of the 1-d `arrays`, with
+    two (20, _BLOCK) scratch arrays reused by every block (allocating the (nodes, n) temporaries of
+    the quadrature afresh costs more than the arithmetic)."""
+    n = len(arrays[0])
+    size = min(n, _BLOCK)
+    scratch = (np.empty(_GAUSS_LEGENDRE_MAX * size), np.empty(_GAUSS_LEGENDRE_MAX * size))
+    if n <= _BLOCK:
+        return function(order, *arrays, scratch)
+    out = np.empty(n)
+    for start in range(0, n, _BLOCK):
+        part = slice(start, start + _BLOCK)
+        out[part] = function(order, *(a[part] for a in arrays), scratch)
+    return out
 
 
-def _from_independent(h, k, rho, log_product):
+def _node_arrays(scratch, n_nodes, n):
+    return tuple(buffer[:n_nodes * n].reshape(n_nodes, n) for buffer in scratch)
+
+
+def _from_independent(order, h, k, rho, log_h, log_k, scratch):
     """log[Φ(-h)Φ(-k) + (1/2π) ∫_0^rho exp(-Q(r)) / sqrt(1 - r²) dr], Q = (h²-2hkr+k²)/(2(1-r²)).
 
     r = rho t with fixed Gauss-Legendre nodes t on [0, 1] (1/sqrt(1 - r²) <= 2.7 for rho < 0.925).
     The exponent is referred to its maximum over [0, rho], known in closed form (Q is smallest at
     r* = B / (A + sqrt(A² - B²)), A = h² + k², B = 2hk, clipped to [0, rho]), so exp never overflows.
+    Node-major (nodes, n) arrays keep numpy's inner loops long; the node sum is a matrix product.
     """
-    nodes, weights = _GAUSS_LEGENDRE[_order(rho)]
-    t, log_w = 0.5 * (nodes + 1.0), np.log(0.5 * weights)
+    nodes, weights = _GAUSS_LEGENDRE[order]
+    t = 0.5 * (nodes + 1.0)
     a, b = h**2 + k**2, 2.0 * h * k
     root = a + np.sqrt(np.maximum(a**2 - b**2, 0.0))
     r_star = np.clip(np.where(root > 0, b / np.where(root > 0, root, 1.0), 0.0), 0.0, rho)
     ref = -0.5 * (a - b * r_star) / (1.0 - r_star**2) - 0.5 * np.log1p(-rho**2)
-    # two (n, nodes) buffers, updated in place (allocating these arrays costs more than the maths)
-    exponent = np.multiply(rho[:, None], t)  # r
-    one_minus = np.multiply(exponent, exponent)
+    exponent, one_minus = _node_arrays(scratch, len(t), len(h))
+    np.multiply.outer(t, 0.5 * b * rho, out=exponent)  # -Q(r) (1 - r²) = (b r - a) / 2
+    exponent -= 0.5 * a
+    np.multiply.outer(t * t, rho * rho, out=one_minus)
     np.subtract(1.0, one_minus, out=one_minus)  # 1 - r²
-    exponent *= b[:, None]
-    np.subtract(a[:, None], exponent, out=exponent)  # a - b r
     exponent /= one_minus
-    exponent += np.log(one_minus, out=one_minus)
-    exponent *= -0.5
-    exponent += log_w
-    exponent -= ref[:, None]
-    total = np.sum(np.exp(exponent, out=exponent), axis=1)
+    exponent -= ref
+    np.exp(exponent, out=exponent)
+    exponent /= np.sqrt(one_minus, out=one_minus)
+    total = (0.5 * weights) @ exponent
     log_integral = ref + np.log(total * rho) - np.log(2.0 * np.pi)
-    return np.logaddexp(log_product, log_integral)
+    return np.logaddexp(log_h + log_k, log_integral)
 
 
-def _from_identical(h, k, rho, log_min):
+def _from_identical(order, h, k, rho, log_h, log_k, scratch):
     """Φ(-max(h,k)) - (1/2π) ∫_0^acos(rho) exp(-(h-k)²/(2sin²θ) - hk/(1+cosθ)) dθ, in logs."""
-    nodes, weights = _GAUSS_LEGENDRE[_order(1.0)]
-    half = 0.5 * np.arccos(rho)[:, None]
-    theta, log_w = half * (nodes + 1.0), np.log(half) + np.log(weights)
-    hh, kk = h[:, None], k[:, None]
-    exponent = -((hh - kk) ** 2) / (2.0 * np.sin(theta) ** 2) - hh * kk / (1.0 + np.cos(theta))
-    log_integral = _logsumexp_rows(exponent + log_w) - np.log(2.0 * np.pi)
+    log_min = np.minimum(log_h, log_k)
+    nodes, weights = _GAUSS_LEGENDRE[order]
+    half = 0.5 * np.arccos(rho)
+    theta, exponent = _node_arrays(scratch, len(nodes), len(h))
+    np.multiply.outer(nodes + 1.0, half, out=theta)
+    np.sin(theta, out=exponent)
+    exponent *= exponent
+    exponent *= -2.0
+    np.divide((h - k) ** 2, exponent, out=exponent)
+    np.cos(theta, out=theta)
+    theta += 1.0
+    np.divide(h * k, theta, out=theta)
+    exponent -= theta
+    top = np.max(exponent, axis=0)
+    top = np.where(np.isfinite(top), top, 0.0)
+    exponent -= top
+    np.exp(exponent, out=exponent)
+    log_integral = top + np.log(weights @ exponent) + np.log(half) - np.log(2.0 * np.pi)
     ratio = np.minimum(np.exp(log_integral - log_min), 1.0)
     return log_min + np.log1p(-ratio)

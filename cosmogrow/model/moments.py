@@ -1,0 +1,98 @@
+"""The plain Gaussian likelihood through weighted moments (docs/method.md#model), and helpers the
+model shares with it."""
+
+import numpy as np
+
+LOG_2PI = np.log(2.0 * np.pi)
+
+
+class GaussianMoments:
+    """Fast exact evaluation of the plain Gaussian likelihood through weighted moments.
+
+    Without selection or outliers the mean is linear in (alpha, beta, k, delta) and the weights
+    1/V_i depend on (sigma_int, beta) only, so every walker's log likelihood follows from the
+    weighted sums sum_i w_i F_i of fixed features F_i = (X_i X_i^T, X_i y_i, y_i^2): one matrix
+    product over objects instead of a dozen element-wise passes.
+    """
+
+    def __init__(self, model):
+        d = model.design
+        layout = model.layout
+        self.model = model
+        dummies = offset_dummies(d)
+        if model.relation:
+            columns = [np.ones_like(d.x), d.s_centred + model.gamma * d.x, -d.x] + dummies
+            self.offset = float(np.mean(d.m_obs))
+            target = d.m_obs - self.offset
+            self.linear_index = ([layout.index_alpha, layout.index_beta, layout.index_k]
+                                 + list(layout.offset_indices))
+        else:
+            columns = [np.ones_like(d.x), -d.x] + dummies
+            target = d.m_obs - d.s_centred - model.gamma * d.x
+            self.offset = float(np.mean(target))
+            target = target - self.offset
+            self.linear_index = [layout.index_alpha, layout.index_k] + list(layout.offset_indices)
+        design_matrix = np.column_stack(columns)
+        p = design_matrix.shape[1]
+        self.upper = np.triu_indices(p)
+        self.p = p
+        cross = (design_matrix[:, self.upper[0]] * design_matrix[:, self.upper[1]])
+        self.features = np.column_stack([cross, design_matrix * target[:, None], target**2])
+        self.n_obj = len(target)
+        self._m_err2 = d.m_err**2
+        self._s_err2 = d.s_err**2
+        self._ev_ratio = self._m_err2 + self._s_err2
+        groups = len(d.scatter_names)
+        self._group_matrix = (np.eye(groups)[d.scatter_index].T.copy() if groups > 1 else None)
+        self._multiplicity = np.where(self.upper[0] == self.upper[1], 1.0, 2.0)
+        self._linear = np.array(self.linear_index, dtype=np.intp)
+
+    def log_likelihood(self, theta, batches=None):
+        """Log likelihood of every row of theta; `batches`: see `CoupledGrowthModel.log_prob`."""
+        model = self.model
+        layout = model.layout
+        sig2 = theta[:, layout.scatter] ** 2
+        sig2_obj = sig2 if self._group_matrix is None else product(sig2, self._group_matrix, batches)
+        if model.relation:
+            var = sig2_obj + self._m_err2 + column(theta, layout.index_beta) ** 2 * self._s_err2
+        else:
+            var = sig2_obj + self._ev_ratio
+        log_det = np.log(var).sum(axis=1)
+        sums = product(np.reciprocal(var, out=var), self.features, batches)
+        p = self.p
+        n_cross = len(self.upper[0])
+        lin = theta.take(self._linear, axis=1)
+        lin[:, 0] -= self.offset
+        # lin^T Q lin with Q assembled from its upper triangle: sum_c sums_c * (lin lin^T)[c] * mult_c
+        outer = lin[:, self.upper[0]] * lin[:, self.upper[1]]
+        quad = (sums[:, :n_cross] * outer * self._multiplicity).sum(axis=1)
+        cross_y = (lin * sums[:, n_cross:n_cross + p]).sum(axis=1)
+        chi2 = sums[:, -1] - 2 * cross_y + quad
+        return -0.5 * (chi2 + log_det + self.n_obj * LOG_2PI)
+
+
+def offset_dummies(design):
+    """Indicator columns of every offset parameter (methods, then host types), as in the layout."""
+    out = [(design.method_index == j).astype(float) for j in range(1, len(design.method_names))]
+    out += [(design.host_index == j).astype(float) for j in range(1, len(design.host_type_names))]
+    return out
+
+
+def split(array, sizes):
+    """`array` cut along its first axis into consecutive pieces of `sizes` rows."""
+    return np.split(array, np.cumsum(sizes)[:-1])
+
+
+def product(a, b, batches):
+    """a @ b; with `batches`, computed batch by batch of rows of `a` (each a fresh array), so that
+    every row comes out as in a separate product of its batch alone (BLAS may sum in another order
+    for another number of rows)."""
+    if batches is None or len(batches) == 1:
+        return a @ b
+    edges = np.concatenate([[0], np.cumsum(batches)]).tolist()
+    return np.concatenate([a[start:stop].copy() @ b for start, stop in zip(edges[:-1], edges[1:])])
+
+
+def column(theta, index):
+    """Column `index` of a (n_walkers, ndim) array, kept two-dimensional for broadcasting."""
+    return theta[:, index:index + 1]
