@@ -408,3 +408,22 @@ def test_command_bad_config_exits_2_and_writes_nothing(plain_design, tmp_path, c
     assert not out.exists()
     assert main(["inject", "--config", str(tmp_path / "nope.toml"), "--out", str(out)]) == 2
     assert not out.exists()
+
+
+def _initial_environment(_context, _task):
+    """The environment this worker process started with (not os.environ, which its initializer
+    may have changed after numpy was imported)."""
+    with open("/proc/self/environ", "rb") as handle:
+        return dict(item.split(b"=", 1) for item in handle.read().split(b"\0") if b"=" in item)
+
+
+@pytest.mark.skipif(not Path("/proc/self/environ").exists(), reason="needs Linux /proc")
+def test_pool_workers_start_with_one_blas_thread(monkeypatch):
+    # a spawned worker imports the parent's __main__ (numpy with it) before its initializer runs,
+    # so the BLAS thread limits must be in the environment it starts with; two workers with a BLAS
+    # thread per core each ran mock fits 12x slower on 2 cores (2.5 against 31 fits/s)
+    monkeypatch.delenv("OPENBLAS_NUM_THREADS", raising=False)
+    pool = ProcessExecutor(2)
+    environments = list(pool.map_unordered(_initial_environment, None, range(2)))
+    assert all(env.get(b"OPENBLAS_NUM_THREADS") == b"1" for env in environments)
+    assert "OPENBLAS_NUM_THREADS" not in os.environ  # the parent's environment is restored
