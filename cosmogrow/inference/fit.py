@@ -114,7 +114,8 @@ def build_model(config, data: FitData, *, selection_aware: bool = True, catalog:
 
 
 def run_fit(config, data: FitData, *, chain_path=None, on_check=None, selection_aware: bool = True,
-            verdicts: dict | None = None, chain_attrs: dict | None = None, timer: StageTimes | None = None) -> FitResult:
+            verdicts: dict | None = None, chain_attrs: dict | None = None, timer: StageTimes | None = None,
+            on_sampled=None) -> FitResult:
     """MAP, Laplace, MCMC and the summary of one run (`chain_attrs`: see inference.resume).
 
     Parameters
@@ -127,7 +128,8 @@ def run_fit(config, data: FitData, *, chain_path=None, on_check=None, selection_
     verdicts : dict {threshold, k_refs} from `verdicts.verdict_options`, optional; default the
         configuration's `[verdicts]` table
 
-    `timer` (outputs.StageTimes, optional) receives the seconds of the stages "map" (model, parent
+    `on_sampled(model, chain)`, optional, is called when the chain ends, before the summary (the
+    command line starts drawing figures then). `timer` (outputs.StageTimes, optional) receives the seconds of the stages "map" (model, parent
     host priors, MAP and Hessian), "sampling", "sensitivity", "significance" and "crosscheck".
 
     Returns
@@ -141,6 +143,8 @@ def run_fit(config, data: FitData, *, chain_path=None, on_check=None, selection_
     with timer.stage("sampling"):
         chain = sample_posterior(model, approx, config.sampler, seed=config.seed, chain_path=chain_path,
                                  on_check=on_check, chain_attrs=chain_attrs)
+    if on_sampled is not None:
+        on_sampled(model, chain)
     summary = summarise(config, data, model, approx, chain, verdicts, timer)
     return FitResult(model=model, laplace=approx, chain=chain, summary=summary)
 
