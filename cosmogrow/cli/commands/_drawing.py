@@ -1,7 +1,8 @@
 """The four figures of a fit, drawn by two forked processes while the parent finishes the fit.
 
-The processes are forked before the MAP: they import the plotting libraries (matplotlib, corner;
-about half a second) on the second core while the parent samples, then wait for work. Corner,
+The first is forked before the MAP: it imports the plotting libraries (matplotlib, corner; about
+half a second) on the second core while the parent samples, then forks the second, and both wait
+for work. Corner,
 offsets and relation figures need only the chain, so they are sent the moment it ends and are
 drawn while the parent computes the verdicts and the cross-check; the cross-check figure is sent
 when that is done. Each figure is a named job, ``FIGURES[name](folder, config, data, payload)``:
@@ -80,33 +81,39 @@ class FigureDrawers:
     def __init__(self, folder, config, data, *, processes: int = 2):
         self.folder, self.config, self.data = folder, config, data
         self.payloads = {}
-        self.workers = []
+        self.process, self.connections = None, []
         if processes and "fork" in multiprocessing.get_all_start_methods() and len(os.sched_getaffinity(0)) >= 2:
-            self.workers = [_start(folder, config, data) for _ in range(processes)]
+            pipes = [multiprocessing.Pipe() for _ in range(processes)]
+            self.process = multiprocessing.get_context("fork").Process(
+                target=_serve, args=([child for _, child in pipes], os.getpid(), folder, config, data), daemon=True)
+            self.process.start()
+            for parent_end, child_end in pipes:
+                child_end.close()
+                self.connections.append(parent_end)
 
     def __enter__(self):
         return self
 
     def __exit__(self, kind, value, traceback):
-        for process, connection in self.workers:
+        for connection in self.connections:
             connection.close()
-            if process.is_alive():
-                process.kill()
-            process.join()
-        self.workers = []
+        if self.process is not None:
+            if self.process.is_alive():
+                self.process.kill()  # its own forked drawer dies with it
+            self.process.join()
+        self.process, self.connections = None, []
 
     def submit(self, payloads: dict) -> None:
         """Start drawing these figures ({figure: payload}) in their drawer, or keep them for `finish`."""
         self.payloads.update(payloads)
         for name, payload in payloads.items():
-            if self.workers:
-                _, connection = self.workers[DRAWER_OF[name] % len(self.workers)]
-                connection.send((name, payload))
+            if self.connections:
+                self.connections[DRAWER_OF[name] % len(self.connections)].send((name, payload))
 
     def finish(self) -> None:
         """Wait for the drawers, then draw here every submitted figure they did not draw."""
         drawn = set()
-        for process, connection in self.workers:
+        for connection in self.connections:
             try:
                 connection.send(None)
                 drawn.update(connection.recv())
@@ -118,18 +125,9 @@ class FigureDrawers:
                 FIGURES[name](self.folder, self.config, self.data, payload)
 
 
-def _start(folder, config, data):
-    """(process, parent's end of the pipe) of one forked drawer."""
-    parent_end, child_end = multiprocessing.Pipe()
-    process = multiprocessing.get_context("fork").Process(
-        target=_serve, args=(child_end, os.getpid(), folder, config, data), daemon=True)
-    process.start()
-    child_end.close()
-    return process, parent_end
-
-
-def _serve(connection, parent_pid, folder, config, data):
-    """A drawer: import the plotting stack, draw each job received until None, answer the names drawn."""
+def _serve(connections, parent_pid, folder, config, data):
+    """The first drawer: import the plotting stack, fork the other drawers from here (so the stack is
+    imported once), then draw the jobs of the first connection."""
     from ...campaigns.executors import die_with_parent
 
     die_with_parent(parent_pid)
@@ -137,6 +135,23 @@ def _serve(connection, parent_pid, folder, config, data):
 
     from ...report import check_figures, fit_figures  # noqa: F401
 
+    mine, *others = connections
+    here, children = os.getpid(), []
+    for connection in others:
+        pid = os.fork()
+        if pid == 0:
+            die_with_parent(here)
+            _draw_jobs(connection, folder, config, data)
+            os._exit(0)
+        children.append(pid)
+        connection.close()
+    _draw_jobs(mine, folder, config, data)
+    for pid in children:
+        os.waitpid(pid, 0)
+
+
+def _draw_jobs(connection, folder, config, data):
+    """Draw each (figure, payload) received until None, then answer the names drawn."""
     drawn = []
     while (job := connection.recv()) is not None:
         name, payload = job
