@@ -105,3 +105,17 @@ def test_console_exits_with_mains_code_and_flushed_output(tmp_path):
     assert done.returncode == 2
     assert done.stderr.startswith("cosmogrow fit: error:") and "missing.csv" in done.stderr
     assert not (tmp_path / "res").exists()
+
+
+def test_legend_goes_to_the_emptiest_corner_of_a_large_scatter():
+    from cosmogrow.report.style import legend_place, plt
+
+    rng = np.random.default_rng(2)
+    x = rng.uniform(0, 1, 5000)
+    y = np.clip(x + rng.normal(0, 0.05, x.size), 0, 1)  # a rising diagonal: upper left and lower right empty
+    x[:1500], y[:1500] = rng.uniform(0.6, 1.0, 1500), rng.uniform(0.0, 0.4, 1500)  # fill the lower right
+    fig, ax = plt.subplots()
+    ax.scatter(x, y)
+    assert legend_place(ax, x[:100], y[:100]) == "best"  # few points: matplotlib's own search
+    assert legend_place(ax, x, y) == "upper left"
+    plt.close(fig)

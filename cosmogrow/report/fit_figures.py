@@ -70,7 +70,7 @@ def relation_figure(catalog, summary, options, path):
     ax.set_xlabel(r"host stellar mass  $\log_{10}(M_*/M_\odot)$")
     ax.set_ylabel(r"black-hole mass  $\log_{10}(M_\mathrm{BH}/M_\odot)$")
     ax.set_title("Fitted relation drawn at each sample's median redshift")
-    ax.legend(fontsize=8)
+    ax.legend(fontsize=8, loc=style.legend_place(ax, catalog.log_mstar, catalog.log_mbh))
     style.save(fig, path)
 
 
@@ -102,5 +102,5 @@ def offsets_figure(catalog, summary, samples_k, options, path, method_offsets=No
     ax.set_xlabel("redshift z")
     ax.set_ylabel(r"offset from reference relation (dex)")
     ax.set_title("Black-hole mass offsets against redshift (diamonds: sample means)")
-    ax.legend(fontsize=8, ncol=2)
+    ax.legend(fontsize=8, ncol=2, loc=style.legend_place(ax, catalog.z, offset))
     style.save(fig, path)
