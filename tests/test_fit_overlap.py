@@ -1,6 +1,7 @@
 """What lets a fit's stages overlap without changing its results: figures drawn by forked drawers
-(redrawn here when a drawer fails), the cross-check beside the chain, the plain likelihood's
-reused temporaries and the command line's exit without interpreter teardown."""
+from the moment the chain ends (redrawn here when a drawer fails), the plain likelihood's reused
+temporaries, legends placed without matplotlib's search over every point and the command line's
+exit without interpreter teardown."""
 
 import os
 import pickle
@@ -13,8 +14,6 @@ import pytest
 from cosmogrow.cli.commands import _drawing
 from cosmogrow.background import get_cosmology
 from cosmogrow.config import RunConfig
-from cosmogrow.inference import fit as fit_module
-from cosmogrow.inference.crosscheck import run_crosscheck
 from cosmogrow.inference.fit import FitData, build_model, run_fit
 
 from mocks import mock_catalog
@@ -73,14 +72,14 @@ def small_fit_inputs():
                                                        cosmology=get_cosmology())
 
 
-def test_crosscheck_beside_the_chain_gives_the_sequential_result(small_fit_inputs, monkeypatch):
+def test_figures_of_the_chain_are_handed_over_when_it_ends(small_fit_inputs):
     config, data = small_fit_inputs
-    monkeypatch.setattr(fit_module, "THREADED_MIN_OBJECTS", 0)  # the thread, on a small catalogue
-    shapes = []
-    result = run_fit(config, data, on_sampled=lambda model, chain: shapes.append(chain.samples.shape))
-    assert shapes == [result.chain.samples.shape]
-    assert len(result.summary["crosscheck"]["grid"]["k"]) > 1
-    np.testing.assert_equal(result.summary["crosscheck"], run_crosscheck(config, data.catalog))
+    seen = []
+    result = run_fit(config, data, on_sampled=lambda model, chain: seen.append(_drawing.chain_payloads(model, chain)))
+    assert len(seen) == 1 and set(seen[0]) == {"corner.png", "offsets.png", "relation.png"}
+    np.testing.assert_array_equal(seen[0]["corner.png"]["samples"], result.chain.samples)
+    # the medians the figures are drawn with are the summary's
+    assert seen[0]["relation.png"]["summary"]["parameters"] == result.summary["parameters"]
 
 
 @pytest.mark.parametrize("form", ["ratio", "relation"])

@@ -3,7 +3,6 @@
 Nothing here prints or draws; the fit command writes the files and the report layer the plots.
 """
 
-from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
 
 import numpy as np
@@ -11,7 +10,7 @@ import numpy as np
 from .. import background
 from ..data.catalog import Catalog
 from ..data.readers import MAP_TARGETS, read_catalogs
-from .crosscheck import THREADED_MIN_OBJECTS, crosscheck_options, crosscheck_warnings, run_crosscheck
+from .crosscheck import crosscheck_options, crosscheck_warnings, run_crosscheck
 from ..config import check_against_data
 from ..errors import ConfigError
 from .k_estimate import sample_posterior
@@ -132,45 +131,28 @@ def run_fit(config, data: FitData, *, chain_path=None, on_check=None, selection_
     `on_sampled(model, chain)`, optional, is called when the chain ends, before the summary (the
     command line starts drawing figures then). `timer` (outputs.StageTimes, optional) receives the
     seconds of the stages "map" (model, parent host priors, MAP and Hessian), "sampling",
-    "sensitivity", "verdicts", "significance" and "crosscheck". The cross-check needs only the
-    catalogue: from `crosscheck.THREADED_MIN_OBJECTS` objects on it runs in a thread beside the MAP
-    and the chain (its stage is then its own duration, not a wait).
+    "sensitivity", "verdicts", "significance" and "crosscheck".
 
     Returns
     -------
     FitResult
     """
     timer = StageTimes() if timer is None else timer
-    side, crosscheck = None, None
-    if len(data.catalog.z) >= THREADED_MIN_OBJECTS:  # big arrays: the GIL is free most of the time
-        side = ThreadPoolExecutor(max_workers=1)
-        crosscheck = side.submit(_timed, timer, "crosscheck", run_crosscheck, config, data.catalog)
-    try:
-        with timer.stage("map"):
-            model = build_model(config, data, selection_aware=selection_aware)
-            approx = laplace(model)
-        with timer.stage("sampling"):
-            chain = sample_posterior(model, approx, config.sampler, seed=config.seed, chain_path=chain_path,
-                                     on_check=on_check, chain_attrs=chain_attrs)
-        if on_sampled is not None:
-            on_sampled(model, chain)
-        summary = summarise(config, data, model, approx, chain, verdicts, timer, crosscheck=crosscheck)
-    finally:
-        if side is not None:
-            side.shutdown(wait=False, cancel_futures=True)
+    with timer.stage("map"):
+        model = build_model(config, data, selection_aware=selection_aware)
+        approx = laplace(model)
+    with timer.stage("sampling"):
+        chain = sample_posterior(model, approx, config.sampler, seed=config.seed, chain_path=chain_path,
+                                 on_check=on_check, chain_attrs=chain_attrs)
+    if on_sampled is not None:
+        on_sampled(model, chain)
+    summary = summarise(config, data, model, approx, chain, verdicts, timer)
     return FitResult(model=model, laplace=approx, chain=chain, summary=summary)
 
 
-def _timed(timer: StageTimes, stage: str, function, *args):
-    """function(*args), timed as `stage`."""
-    with timer.stage(stage):
-        return function(*args)
-
-
 def summarise(config, data: FitData, model: CoupledGrowthModel, approx, chain,
-              verdicts: dict | None = None, timer: StageTimes | None = None, crosscheck=None) -> dict:
-    """The summary.json content of a fit (`timer` collects the stages' wall times; `crosscheck`, a
-    future of `run_crosscheck` already started, else it is run here)."""
+              verdicts: dict | None = None, timer: StageTimes | None = None) -> dict:
+    """The summary.json content of a fit (`timer` collects the stages' wall times)."""
     timer = StageTimes() if timer is None else timer
     with timer.stage("sensitivity"):
         sensitivity = offset_sensitivity(model, approx)
@@ -193,8 +175,8 @@ def summarise(config, data: FitData, model: CoupledGrowthModel, approx, chain,
         warnings.append("no selection is declared for any sample: k is only as good as the "
                         "assumption that the samples were not selected on black-hole mass")
     k_summary = describe_samples(chain.samples[:, model.index_k])
-    crosscheck = (_timed(timer, "crosscheck", run_crosscheck, config, data.catalog) if crosscheck is None
-                  else crosscheck.result())
+    with timer.stage("crosscheck"):
+        crosscheck = run_crosscheck(config, data.catalog)
     warnings += crosscheck_warnings(crosscheck, k_summary)
     with timer.stage("significance"):
         tests = hypothesis_tests(model, chain, judged["significance"])
