@@ -1,13 +1,12 @@
 """The four figures of a fit, drawn by two forked processes while the parent finishes the fit.
 
-The first is forked before the MAP: it imports the plotting libraries (matplotlib, corner; about
-half a second) on the second core while the parent samples, then forks the second, and both wait
-for work. Corner,
-offsets and relation figures need only the chain, so they are sent the moment it ends and are
-drawn while the parent computes the verdicts and the cross-check; the cross-check figure is sent
-when that is done. Each figure is a named job, ``FIGURES[name](folder, config, data, payload)``:
+The first drawer is forked before the MAP: it imports the plotting libraries (matplotlib, corner;
+about half a second) on the second core while the parent samples, then forks the second, and both
+wait for work. The corner, offsets and relation figures need only the chain: they are sent the
+moment it ends and are drawn while the parent computes the verdicts; the cross-check figure is
+sent with the summary. Each figure is a named job, ``FIGURES[name](folder, config, data, payload)``:
 the payload holds what the chain or the summary adds (small, sent through a pipe), the catalogue
-and configuration are those the process was forked with.
+and configuration are those the drawers were forked with.
 
 A figure a drawer could not draw is drawn again in the parent, so its error surfaces as usual;
 without fork or a free second core every figure is drawn in the parent.
