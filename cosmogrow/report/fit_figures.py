@@ -30,6 +30,12 @@ def parameter_axis_label(name):
     return f"{label} ({unit})" if unit else label
 
 
+def preload():
+    """Import now what the figures import when first drawn (corner.py; matplotlib comes with this
+    module), e.g. in a process that draws later."""
+    import corner  # noqa: F401
+
+
 def corner_figure(samples, names, path, truths=None):
     """Corner plot of the posterior draws (corner.py), k first; axes named by symbol and unit."""
     import corner

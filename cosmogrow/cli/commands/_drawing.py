@@ -131,9 +131,9 @@ def _serve(connections, parent_pid, folder, config, data):
     from ...campaigns.executors import die_with_parent
 
     die_with_parent(parent_pid)
-    import corner  # noqa: F401  (imported now, while the parent samples)
+    from ...report import check_figures, fit_figures  # noqa: F401  (imported now, while the parent samples)
 
-    from ...report import check_figures, fit_figures  # noqa: F401
+    fit_figures.preload()
 
     mine, *others = connections
     here, children = os.getpid(), []
