@@ -29,7 +29,7 @@ sys.path.insert(0, str(Path(__file__).resolve().parent))
 from bench_table import emit, row  # noqa: E402
 
 HERE = Path(__file__).resolve().parent
-ENTRY = [sys.executable, "-c", "import sys; from cosmogrow.cli import main; sys.exit(main(sys.argv[1:]))"]
+ENTRY = [sys.executable, "-m", "cosmogrow.cli"]  # what the `cosmogrow` script runs (cli.console)
 LIMITS = {10_000: 5.0, 100_000: 30.0, 1_000_000: 300.0}
 SUPERSCRIPT = str.maketrans("0123456789", "⁰¹²³⁴⁵⁶⁷⁸⁹")
 

@@ -47,7 +47,8 @@ def test_fit_times_its_stages_and_prints_them_when_verbose(tmp_path, capsys):
     assert dispatch.main(["fit", str(local), str(far), "--out", str(out), "--seed", "2", "--quiet",
                           "--verbose"]) == 0
     timings = json.loads((out / "summary.json").read_text())["timings"]
-    stages = ("read", "map", "sampling", "sensitivity", "crosscheck", "significance", "figures", "writing")
+    stages = ("imports", "read", "map", "sampling", "sensitivity", "crosscheck", "significance", "figures",
+              "writing")
     assert set(stages) <= set(timings)
     assert all(timings[name] >= 0 for name in stages)
     assert timings["total"] == pytest.approx(sum(timings[name] for name in timings if name != "total"),

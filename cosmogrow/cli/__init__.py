@@ -11,6 +11,6 @@ import os
 # users choose for themselves; campaign workers set it for themselves (campaigns.executors).
 os.environ.setdefault("OPENBLAS_NUM_THREADS", "1")
 
-from .dispatch import main  # noqa: E402  (after the environment is set)
+from .dispatch import console, main  # noqa: E402  (after the environment is set)
 
-__all__ = ["main"]
+__all__ = ["console", "main"]

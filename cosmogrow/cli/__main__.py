@@ -1,7 +1,5 @@
 """`python -m cosmogrow.cli ARGS`: the command line, as the `cosmogrow` script."""
 
-import sys
+from . import console
 
-from . import main
-
-sys.exit(main())
+console()

@@ -114,7 +114,8 @@ def build_model(config, data: FitData, *, selection_aware: bool = True, catalog:
 
 
 def run_fit(config, data: FitData, *, chain_path=None, on_check=None, selection_aware: bool = True,
-            verdicts: dict | None = None, chain_attrs: dict | None = None, timer: StageTimes | None = None) -> FitResult:
+            verdicts: dict | None = None, chain_attrs: dict | None = None, timer: StageTimes | None = None,
+            on_sampled=None) -> FitResult:
     """MAP, Laplace, MCMC and the summary of one run (`chain_attrs`: see inference.resume).
 
     Parameters
@@ -127,8 +128,10 @@ def run_fit(config, data: FitData, *, chain_path=None, on_check=None, selection_
     verdicts : dict {threshold, k_refs} from `verdicts.verdict_options`, optional; default the
         configuration's `[verdicts]` table
 
-    `timer` (outputs.StageTimes, optional) receives the seconds of the stages "map" (model, parent
-    host priors, MAP and Hessian), "sampling", "sensitivity", "significance" and "crosscheck".
+    `on_sampled(model, chain)`, optional, is called when the chain ends, before the summary (the
+    command line starts drawing figures then). `timer` (outputs.StageTimes, optional) receives the
+    seconds of the stages "map" (model, parent host priors, MAP and Hessian), "sampling",
+    "sensitivity", "verdicts", "significance" and "crosscheck".
 
     Returns
     -------
@@ -138,16 +141,22 @@ def run_fit(config, data: FitData, *, chain_path=None, on_check=None, selection_
     with timer.stage("map"):
         model = build_model(config, data, selection_aware=selection_aware)
         approx = laplace(model)
+    with timer.stage("crosscheck"):  # needs only the catalogue: done before the figures are drawn
+        crosscheck = run_crosscheck(config, data.catalog)
     with timer.stage("sampling"):
         chain = sample_posterior(model, approx, config.sampler, seed=config.seed, chain_path=chain_path,
                                  on_check=on_check, chain_attrs=chain_attrs)
-    summary = summarise(config, data, model, approx, chain, verdicts, timer)
+    if on_sampled is not None:
+        on_sampled(model, chain)
+    summary = summarise(config, data, model, approx, chain, verdicts, timer, crosscheck)
     return FitResult(model=model, laplace=approx, chain=chain, summary=summary)
 
 
 def summarise(config, data: FitData, model: CoupledGrowthModel, approx, chain,
-              verdicts: dict | None = None, timer: StageTimes | None = None) -> dict:
-    """The summary.json content of a fit (`timer` collects the stages' wall times)."""
+              verdicts: dict | None = None, timer: StageTimes | None = None,
+              crosscheck: dict | None = None) -> dict:
+    """The summary.json content of a fit (`timer` collects the stages' wall times; `crosscheck`, the
+    result of `run_crosscheck` when already computed)."""
     timer = StageTimes() if timer is None else timer
     with timer.stage("sensitivity"):
         sensitivity = offset_sensitivity(model, approx)
@@ -170,8 +179,9 @@ def summarise(config, data: FitData, model: CoupledGrowthModel, approx, chain,
         warnings.append("no selection is declared for any sample: k is only as good as the "
                         "assumption that the samples were not selected on black-hole mass")
     k_summary = describe_samples(chain.samples[:, model.index_k])
-    with timer.stage("crosscheck"):
-        crosscheck = run_crosscheck(config, data.catalog)
+    if crosscheck is None:
+        with timer.stage("crosscheck"):
+            crosscheck = run_crosscheck(config, data.catalog)
     warnings += crosscheck_warnings(crosscheck, k_summary)
     with timer.stage("significance"):
         tests = hypothesis_tests(model, chain, judged["significance"])

@@ -30,6 +30,12 @@ def parameter_axis_label(name):
     return f"{label} ({unit})" if unit else label
 
 
+def preload():
+    """Import now what the figures import when first drawn (corner.py; matplotlib comes with this
+    module), e.g. in a process that draws later."""
+    import corner  # noqa: F401
+
+
 def corner_figure(samples, names, path, truths=None):
     """Corner plot of the posterior draws (corner.py), k first; axes named by symbol and unit."""
     import corner
@@ -70,7 +76,7 @@ def relation_figure(catalog, summary, options, path):
     ax.set_xlabel(r"host stellar mass  $\log_{10}(M_*/M_\odot)$")
     ax.set_ylabel(r"black-hole mass  $\log_{10}(M_\mathrm{BH}/M_\odot)$")
     ax.set_title("Fitted relation drawn at each sample's median redshift")
-    ax.legend(fontsize=8)
+    ax.legend(fontsize=8, loc=style.legend_place(ax, catalog.log_mstar, catalog.log_mbh))
     style.save(fig, path)
 
 
@@ -102,5 +108,5 @@ def offsets_figure(catalog, summary, samples_k, options, path, method_offsets=No
     ax.set_xlabel("redshift z")
     ax.set_ylabel(r"offset from reference relation (dex)")
     ax.set_title("Black-hole mass offsets against redshift (diamonds: sample means)")
-    ax.legend(fontsize=8, ncol=2)
+    ax.legend(fontsize=8, ncol=2, loc=style.legend_place(ax, catalog.z, offset))
     style.save(fig, path)

@@ -1,6 +1,7 @@
 """The house look of cosmogrow's figures: print-friendly, colour-blind-safe, labelled with units."""
 
 import matplotlib
+import numpy as np
 
 matplotlib.use("Agg")
 import matplotlib.pyplot as plt  # noqa: E402
@@ -26,6 +27,21 @@ def integer_counts(ax, axis="y"):
     from matplotlib.ticker import MaxNLocator
 
     getattr(ax, f"{axis}axis").set_major_locator(MaxNLocator(integer=True))
+
+
+def legend_place(ax, x, y, limit=2000):
+    """Where a legend goes: matplotlib's "best" for up to `limit` points; above, the corner of the
+    axes (40 % of each side) holding the fewest of the points (x, y) in data coordinates. The
+    "best" search costs points x candidate places: 8 s at 1e6 points, 0.05 s for this count."""
+    x, y = np.asarray(x, dtype=float), np.asarray(y, dtype=float)
+    if x.size <= limit:
+        return "best"
+    (x0, x1), (y0, y1) = ax.get_xlim(), ax.get_ylim()
+    u, v = (x - x0) / (x1 - x0), (y - y0) / (y1 - y0)
+    low_u, high_u, low_v, high_v = u < 0.4, u > 0.6, v < 0.4, v > 0.6
+    counts = {"upper left": np.sum(low_u & high_v), "upper right": np.sum(high_u & high_v),
+              "lower left": np.sum(low_u & low_v), "lower right": np.sum(high_u & low_v)}
+    return min(counts, key=counts.get)
 
 
 def colour(i):

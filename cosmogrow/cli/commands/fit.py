@@ -55,14 +55,17 @@ def progress_printer(quiet):
 
 
 def run(args):
-    from ...config import read_run_config
-    from ...errors import CosmogrowError
-    from ...inference.fit import load_data, run_fit
-    from ...inference.resume import chain_attrs, fit_fingerprint, stored_seed
-    from ...inference.verdicts import verdict_options
-    from ...outputs import StageTimes, staged_directory, stale_stages
+    from ...outputs import StageTimes
 
     timer = StageTimes()
+    with timer.stage("imports"):  # the numerical libraries (numpy, scipy, pandas, astropy, emcee, h5py)
+        from ...config import read_run_config
+        from ...errors import CosmogrowError
+        from ...inference.fit import load_data, run_fit
+        from ...inference.resume import chain_attrs, fit_fingerprint, stored_seed
+        from ...inference.verdicts import verdict_options
+        from ...outputs import staged_directory, stale_stages
+        from ._drawing import FigureDrawers, chain_payloads, summary_payloads
     out = Path(args.out)
     with timer.stage("read"):
         config = read_run_config(args.config).with_overrides(form=args.form, catalogs=args.catalogs)
@@ -76,18 +79,20 @@ def run(args):
     fingerprint = fit_fingerprint(config, data, selection_aware=not args.plain)
     previous = _chain_to_continue(args, out, config, fingerprint)
     try:
-        with staged_directory(out) as stage:
+        with staged_directory(out) as stage, FigureDrawers(stage, config, data) as drawers:
             if previous is not None:
                 shutil.copy2(previous, stage / "chain.h5")
             result = run_fit(config, data, chain_path=stage / "chain.h5", selection_aware=not args.plain,
                              on_check=progress_printer(args.quiet), verdicts=verdicts,
-                             chain_attrs=chain_attrs(fingerprint, config.seed), timer=timer)
+                             chain_attrs=chain_attrs(fingerprint, config.seed), timer=timer,
+                             on_sampled=lambda model, chain: drawers.submit(chain_payloads(model, chain)))
             if not math.isfinite(result.summary["k"]["median"]):
                 raise CosmogrowError("the fit gave a non-finite k; nothing written (check the inputs' "
                                      "ranges and the [priors] table)")
             if args.resume and _worse_than_before(out, result):
                 raise _KeepEarlier
-            write_fit_outputs(stage, config, data, result, timer)
+            drawers.submit(summary_payloads(result.summary))
+            write_fit_outputs(stage, config, data, result, timer, drawers)
     except _KeepEarlier:
         print(f"cosmogrow fit: the continued chain did not converge but the results in {out} did; "
               "they are kept", file=sys.stderr)
@@ -141,18 +146,26 @@ def format_timings(timings):
     return "\n".join(lines)
 
 
-def write_fit_outputs(folder, config, data, result, timer=None):
+def write_fit_outputs(folder, config, data, result, timer=None, drawers=None):
     """summary.md, summary.tex, samples.npz, the figures (corner, relation, offsets, crosscheck) and,
-    last, summary.json with the stage `timings` ("figures" and "writing" included)."""
+    last, summary.json with the stage `timings` ("figures" and "writing" included).
+
+    `drawers` (`_drawing.FigureDrawers`) holds figures already being drawn; without it every
+    figure is drawn here. The "figures" stage is the time spent waiting for them.
+    """
     import numpy as np
 
     from ...outputs import StageTimes, write_json
     from ...report.markdown import fit_markdown
+    from ._drawing import FigureDrawers, chain_payloads, summary_payloads
 
     timer = StageTimes() if timer is None else timer
     summary = result.summary
     with timer.stage("figures"):
-        _draw_figures(folder, config, data, result)
+        if drawers is None:
+            drawers = FigureDrawers(folder, config, data, processes=0)
+            drawers.submit({**chain_payloads(result.model, result.chain), **summary_payloads(summary)})
+        drawers.finish()
     with timer.stage("writing"):
         from ...report.latex import posterior_table
 
@@ -163,54 +176,3 @@ def write_fit_outputs(folder, config, data, result, timer=None):
                  k=samples[:, result.model.index_k], log_prob=result.chain.log_prob)
     summary["timings"] = timer.as_dict()
     write_json(folder / "summary.json", summary)
-
-
-def _draw_figures(folder, config, data, result):
-    """The four figures, half of them in a forked child process when the machine has a core to spare
-    (figures are a third of a fit's time at N = 1e4); a figure the child failed to draw is drawn
-    here, so its error surfaces as usual."""
-    from ...report.check_figures import crosscheck_figure
-    from ...report.fit_figures import corner_figure, offsets_figure, relation_figure
-
-    summary = result.summary
-    samples = result.chain.samples
-    layout = result.model.layout
-    medians = layout.from_dict({name: row["median"] for name, row in summary["parameters"].items()})
-    figures = {
-        "corner.png": lambda: corner_figure(samples, result.model.names, folder / "corner.png"),
-        "offsets.png": lambda: offsets_figure(data.catalog, summary, samples[:, layout.index_k], config.model,
-                                              folder / "offsets.png", layout.offsets_by_label(medians, "method"),
-                                              layout.offsets_by_label(medians, "host_type")),
-        "relation.png": lambda: relation_figure(data.catalog, summary, config.model, folder / "relation.png"),
-        "crosscheck.png": lambda: crosscheck_figure(summary.get("crosscheck"), summary["k"],
-                                                    folder / "crosscheck.png"),
-    }
-    names = list(figures)
-    child = _fork_drawing([figures[name] for name in names[:2]])
-    mine = names[2:] if child else names
-    for name in mine:
-        figures[name]()
-    if child:
-        child.join()
-        for name in names[:2]:
-            if child.exitcode != 0 or not (folder / name).is_file():
-                figures[name]()
-
-
-def _fork_drawing(draws):
-    """A forked process running `draws` (None when fewer than two cores are free or fork is missing)."""
-    import multiprocessing
-    import os
-
-    if "fork" not in multiprocessing.get_all_start_methods() or len(os.sched_getaffinity(0)) < 2:
-        return None
-    from ...campaigns.executors import die_with_parent
-
-    def work(parent_pid):
-        die_with_parent(parent_pid)
-        for draw in draws:
-            draw()
-
-    process = multiprocessing.get_context("fork").Process(target=work, args=(os.getpid(),), daemon=True)
-    process.start()
-    return process
