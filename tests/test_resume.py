@@ -168,3 +168,26 @@ def test_sigterm_removes_the_staging_folder(cats, tmp_path):
     process.terminate()
     assert process.wait(timeout=60) == 128 + signal.SIGTERM
     assert sorted(p.name for p in tmp_path.iterdir()) == ["long.toml"]
+
+
+def test_a_reader_of_the_chain_does_not_stop_the_fit(tmp_path):
+    # a user (or a test) reading the chain of a running fit holds HDF5's shared lock; the fit's
+    # next write must not fail on it (it did: "unable to lock file", and the fit ended)
+    from cosmogrow.inference.mcmc import run_ensemble
+
+    def log_prob(theta):
+        return -0.5 * np.sum(np.atleast_2d(theta) ** 2, axis=1)
+
+    path = tmp_path / "chain.h5"
+    start = np.random.default_rng(0).normal(size=(8, 2))
+    run_ensemble(log_prob, start, max_steps=20, check_every=10, chain_path=path, seed=1)
+    holder = subprocess.Popen([sys.executable, "-c", "import h5py, sys, time\n"
+                               f"handle = h5py.File({str(path)!r}, 'r')\nprint('open', flush=True)\ntime.sleep(30)"],
+                              stdout=subprocess.PIPE, text=True)
+    try:
+        assert holder.stdout.readline().strip() == "open"
+        result = run_ensemble(log_prob, start, max_steps=40, check_every=10, chain_path=path, seed=1)
+        assert result.n_steps == 40 and _chain_steps(path) == 40
+    finally:
+        holder.kill()
+        holder.wait()

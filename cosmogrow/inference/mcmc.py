@@ -45,11 +45,23 @@ def _buffered_backend(path):
     """emcee's HDF5 backend writing steps in blocks: one file open per block instead of per step
     (per-step writes cost ~4 ms each, more than a step of the sampler at N = 10^4)."""
     import emcee
+    import h5py
 
     class BufferedHDFBackend(emcee.backends.HDFBackend):
         def __init__(self, filename):
             super().__init__(filename)
             self._rows = []
+
+        def open(self, mode="r"):
+            # without HDF5's file locks: another process reading the chain of a running fit (a
+            # user inspecting it) would otherwise make this writer's next open fail and end the fit
+            if self.read_only and mode != "r":
+                raise RuntimeError("the chain was opened read-only")
+            handle = h5py.File(self.filename, mode, locking=False)
+            if not self.dtype_set and self.name in handle and "chain" in handle[self.name]:
+                self.dtype = handle[self.name]["chain"].dtype
+                self.dtype_set = True
+            return handle
 
         def save_step(self, state, accepted):
             self._rows.append((np.array(state.coords), np.array(state.log_prob), np.array(accepted),
@@ -175,7 +187,7 @@ def run_ensemble(log_prob, start, *, max_steps=20000, autocorr_factor=50.0, chec
 def _write_attrs(path, attrs):
     import h5py
 
-    with h5py.File(path, "a") as handle:
+    with h5py.File(path, "a", locking=False) as handle:  # see BufferedHDFBackend.open
         for key, value in attrs.items():
             handle.attrs[key] = value
 
