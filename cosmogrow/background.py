@@ -2,14 +2,31 @@
 
 Units are accepted at this edge; the functions return plain float arrays in the units their
 names state (Mpc, cm, Gyr, Mpc^3 sr^-1), so the numerical core never handles Quantities.
+astropy is imported on first use (its import takes about a second): a fit without selection never
+needs it, since a named cosmology is described from `REALISATIONS` until something asks for a
+distance (`DeferredCosmology`).
 """
 
+import importlib
+
 import numpy as np
-from astropy import cosmology as _cosmo
-from astropy import units as u
 
 from . import validate
 from .errors import ConfigError
+
+
+class _LazyModule:
+    """A module imported on first attribute access."""
+
+    def __init__(self, name):
+        self._name = name
+
+    def __getattr__(self, attr):
+        return getattr(importlib.import_module(self._name), attr)
+
+
+_cosmo = _LazyModule("astropy.cosmology")
+u = _LazyModule("astropy.units")
 
 DEFAULT_COSMOLOGY = "Planck18"
 
@@ -24,16 +41,59 @@ _PARAMETRIC = {
 _OPTIONAL = ("Tcmb0", "Neff", "Ob0", "m_nu")
 
 
+#: What `describe` says of astropy's built-in realisations, so that naming one needs no import of
+#: astropy (tests/test_background.py checks every entry against astropy's own objects).
+REALISATIONS = {
+    "WMAP1": (72.0, 0.257, 0.7429194200190258, 2.725),
+    "WMAP3": (70.1, 0.276, 0.7239149927205336, 2.725),
+    "WMAP5": (70.2, 0.277, 0.7229152347340179, 2.725),
+    "WMAP7": (70.4, 0.272, 0.7279157156707268, 2.725),
+    "WMAP9": (69.32, 0.2865, 0.7134130689259821, 2.725),
+    "Planck13": (67.77, 0.30712, 0.6913911505510131, 2.7255),
+    "Planck15": (67.74, 0.3075, 0.6910098315260953, 2.7255),
+    "Planck18": (67.66, 0.30966, 0.6888463055445441, 2.7255),
+}
+
+
+class DeferredCosmology:
+    """One of astropy's built-in realisations (`REALISATIONS`), built when first used.
+
+    Attribute access (distances, ages, H0, ...) builds the astropy object and delegates to it;
+    `describe` answers from `REALISATIONS` without building it. Pickles by name.
+    """
+
+    def __init__(self, name: str):
+        self.__dict__["realisation"] = name
+        self.__dict__["_built"] = None
+
+    def build(self):
+        """The astropy cosmology itself."""
+        if self._built is None:
+            self.__dict__["_built"] = _realisation(self.realisation)
+        return self._built
+
+    def __getattr__(self, attr):
+        return getattr(self.build(), attr)
+
+    def __reduce__(self):
+        return (DeferredCosmology, (self.realisation,))
+
+    def __repr__(self):
+        return f"DeferredCosmology({self.realisation!r})"
+
+
 def available_realisations():
     """Names of astropy's built-in cosmology realisations (Planck18, WMAP9, ...)."""
     return tuple(_cosmo.realizations.available)
 
 
-def get_cosmology(spec=None):
+def get_cosmology(spec=None, *, deferred: bool = False):
     """Build an astropy cosmology.
 
     Parameters
     ----------
+    deferred : bool; True returns a `DeferredCosmology` for a built-in realisation named in
+        `REALISATIONS` (astropy then loads when a distance is first needed)
     spec : None, str, dict or astropy Cosmology
         None (or an empty table) gives Planck18. A string names a realisation. A dict either has ``name`` (a
         realisation) or ``model`` (one of LambdaCDM, FlatLambdaCDM, wCDM, FlatwCDM, w0waCDM,
@@ -43,18 +103,20 @@ def get_cosmology(spec=None):
     """
     if spec is None or (isinstance(spec, dict) and not spec):  # an empty [cosmology] table: the default
         spec = DEFAULT_COSMOLOGY
-    if isinstance(spec, _cosmo.Cosmology):
+    if isinstance(spec, DeferredCosmology):
         return spec
-    if isinstance(spec, str):
-        return _realisation(spec)
-    if not isinstance(spec, dict):
-        raise ConfigError(f"cosmology: expected a name or a table, got {spec!r}")
-    if "name" in spec:
+    if isinstance(spec, dict) and "name" in spec:
         extra = set(spec) - {"name"}
         if extra:
             raise ConfigError(f"cosmology: 'name' cannot be combined with {sorted(extra)}")
-        return _realisation(spec["name"])
-    return _parametric(dict(spec))
+        spec = spec["name"]
+    if isinstance(spec, str):
+        return DeferredCosmology(spec) if deferred and spec in REALISATIONS else _realisation(spec)
+    if isinstance(spec, dict):
+        return _parametric(dict(spec))
+    if isinstance(spec, _cosmo.Cosmology):
+        return spec
+    raise ConfigError(f"cosmology: expected a name or a table, got {spec!r}")
 
 
 def _realisation(name):
@@ -96,7 +158,7 @@ def _parametric(spec):
 _RANGES = {"H0": (0.0, True, None), "Om0": (0.0, False, None), "Ode0": (0.0, False, None),
            "Tcmb0": (0.0, False, None), "Neff": (0.0, False, None), "Ob0": (0.0, False, None),
            "w0": (None, False, None), "wa": (None, False, None)}
-_UNITS = {"H0": u.km / u.s / u.Mpc, "Tcmb0": u.K}
+
 
 
 def _parameter(key, value):
@@ -108,7 +170,8 @@ def _parameter(key, value):
         return np.asarray(values, dtype=float) * u.eV
     low, low_open, high = _RANGES[key]
     number = validate.number(value, f"cosmology.{key}", low=low, low_open=low_open, high=high)
-    return number * _UNITS[key] if key in _UNITS else number
+    units = {"H0": u.km / u.s / u.Mpc, "Tcmb0": u.K}
+    return number * units[key] if key in units else number
 
 
 def _check_expansion(cosmo, model):
@@ -183,6 +246,12 @@ def redshift_at_age(cosmo, age):
 
 def describe(cosmo):
     """A short JSON-friendly description of a cosmology."""
+    if isinstance(cosmo, DeferredCosmology):
+        if cosmo._built is None:
+            h0, om0, ode0, tcmb0 = REALISATIONS[cosmo.realisation]
+            return {"name": cosmo.realisation, "class": "FlatLambdaCDM", "H0": h0, "Om0": om0,
+                    "Ode0": ode0, "Tcmb0": tcmb0}
+        cosmo = cosmo.build()
     desc = {"name": cosmo.name or type(cosmo).__name__, "class": type(cosmo).__name__,
             "H0": float(cosmo.H0.to_value(u.km / u.s / u.Mpc)), "Om0": float(cosmo.Om0),
             "Ode0": float(cosmo.Ode0), "Tcmb0": float(cosmo.Tcmb0.to_value(u.K))}

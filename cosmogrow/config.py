@@ -190,7 +190,7 @@ def parse_run_config(raw, *, base_dir=Path("."), source=None):
         if seed is not None:
             validate.seed(seed, "seed")
         cosmology = raw.get("cosmology")
-        get_cosmology(cosmology)
+        get_cosmology(cosmology, deferred=True)
         validate.table(raw.get("crosscheck", {}), "crosscheck")
     return RunConfig(samples=samples, model=model, priors=priors, sampler=sampler,
                      cosmology=cosmology, seed=seed, source=source, raw=raw)

@@ -4,6 +4,7 @@ import numpy as np
 import pytest
 
 from cosmogrow import background
+from cosmogrow.background import get_cosmology
 from cosmogrow.errors import ConfigError
 
 D_H70 = 299792.458 / 70.0  # Hubble distance c/H0 for H0 = 70, Mpc
@@ -119,3 +120,56 @@ def test_child_seeds_depend_on_parent_and_indices():
     draws = {(p, i): np.random.default_rng(child_seed(parent[p], i)).random() for p in (0, 1) for i in (0, 1)}
     assert len(set(draws.values())) == 4
     assert np.random.default_rng(child_seed(7, 3, 1)).random() == np.random.default_rng(child_seed(7, 3, 1)).random()
+
+
+def test_realisations_table_matches_astropy():
+    # a named cosmology is described without importing astropy (background.REALISATIONS); every
+    # entry must say exactly what astropy's own object says
+    from cosmogrow.background import REALISATIONS, DeferredCosmology, available_realisations, describe
+
+    assert set(REALISATIONS) <= set(available_realisations())
+    for name in REALISATIONS:
+        deferred = DeferredCosmology(name)
+        assert describe(deferred) == describe(get_cosmology(name)), name
+        assert deferred._built is None  # describing did not build it
+
+
+def test_deferred_cosmology_builds_on_first_distance_and_pickles_by_name():
+    import pickle
+
+    from cosmogrow.background import DeferredCosmology, luminosity_distance_mpc
+
+    deferred = get_cosmology("Planck18", deferred=True)
+    assert isinstance(deferred, DeferredCosmology)
+    again = pickle.loads(pickle.dumps(deferred))
+    assert again._built is None and again.realisation == "Planck18"
+    z = np.array([0.1, 1.0])
+    assert np.array_equal(luminosity_distance_mpc(deferred, z), luminosity_distance_mpc(get_cosmology("Planck18"), z))
+    assert deferred._built is not None and deferred.H0 == get_cosmology("Planck18").H0
+    # names outside the table and parametric tables are built at once (and validated by astropy)
+    assert not isinstance(get_cosmology({"H0": 70, "Om0": 0.3}, deferred=True), DeferredCosmology)
+    with pytest.raises(ConfigError, match="unknown realisation"):
+        get_cosmology("Planck99", deferred=True)
+
+
+def test_a_fit_without_selection_does_not_import_astropy_cosmology(tmp_path):
+    # the whole fit command (text catalogues, no selection): astropy.cosmology's import costs ~1 s
+    import subprocess
+    import sys
+    from pathlib import Path
+
+    sys.path.insert(0, str(Path(__file__).parent))
+    from mocks import mock_catalog, write_samples
+
+    cat = mock_catalog(np.random.default_rng(3), 1.0, samples=((0.02, 30, "dynamical"), (1.0, 30, "dynamical")))
+    paths = write_samples(cat, tmp_path, ("a.csv", "b.csv"))
+    code = ("import sys\nfrom cosmogrow.cli.dispatch import main\n"
+            f"status = main(['fit', {str(paths[0])!r}, {str(paths[1])!r}, '--out', {str(tmp_path / 'out')!r}, "
+            "'--quiet', '--config', " + repr(str(tmp_path / "run.toml")) + "])\n"
+            "print('astropy.cosmology' in sys.modules, status)")
+    (tmp_path / "run.toml").write_text("seed = 1\n[sampler]\nmax_steps = 400\n")
+    result = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, cwd=tmp_path)
+    assert result.stdout.split()[-2:] == ["False", "0"] or result.stdout.split()[-2:] == ["False", "3"], \
+        result.stdout + result.stderr
+    summary = (tmp_path / "out" / "summary.json").read_text()
+    assert '"Planck18"' in summary

@@ -110,9 +110,11 @@ def check_scalar(table, source, path):
 
 def check_redshift_unit(column, source, path):
     """A redshift has no unit (or astropy's redshift unit); a length or velocity is refused."""
+    unit = getattr(column, "unit", None)
+    if unit is None:  # text formats: nothing to check, and no need to import astropy
+        return
     import astropy.cosmology.units as cu
     import astropy.units as u
 
-    unit = getattr(column, "unit", None)
-    if unit is not None and unit not in (u.dimensionless_unscaled, cu.redshift):
+    if unit not in (u.dimensionless_unscaled, cu.redshift):
         raise InputError(path, f"expected a dimensionless redshift, got a column in {unit}", column=source)

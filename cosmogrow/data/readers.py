@@ -100,9 +100,11 @@ class _Checked:
 
 def _unit_kind(unit, path, source):
     """'log' (no unit or dex), 'function' (a logarithmic unit such as dex(solMass)) or 'mass'."""
+    if unit is None:
+        return "log"
     import astropy.units as u
 
-    if unit is None or unit == u.dimensionless_unscaled or unit == u.dex:
+    if unit == u.dimensionless_unscaled or unit == u.dex:
         return "log"
     if isinstance(unit, u.FunctionUnitBase) and unit.physical_unit.physical_type == "mass":
         return "function"
@@ -113,8 +115,6 @@ def _unit_kind(unit, path, source):
 
 def _mass_columns(table, names, quantity, path):
     """log10 M/Msun and its dex uncertainty for quantity 'mbh' or 'mstar', converting units."""
-    import astropy.units as u
-
     checked = []
     log_mass = None
     for name in (f"log_{quantity}", f"log_{quantity}_err"):
@@ -127,6 +127,8 @@ def _mass_columns(table, names, quantity, path):
                              f"{unit}; or give log10(M/Msun) as {name!r}", column=source)
         col = _Checked(column, source)
         values = col.values
+        if kind != "log":  # a unit to convert (FITS, ECSV): astropy is imported only then
+            import astropy.units as u
         with np.errstate(divide="ignore", invalid="ignore"):
             if kind == "function" and name.endswith("_err"):
                 col.values = values * abs((1.0 * unit.function_unit).to(u.dex).value)

@@ -58,7 +58,7 @@ def load_data(config) -> FitData:
     with in_file(config.source):
         if not config.samples:
             raise ConfigError("no catalogues given (list them on the command line or as [[sample]] tables)")
-        cosmology = background.get_cosmology(config.cosmology)
+        cosmology = background.get_cosmology(config.cosmology, deferred=True)
         crosscheck_options(config.raw.get("crosscheck", {}), config.source)  # fail before the MCMC
         verdict_options(config.raw.get("verdicts", {}), config.source)
         built = [list(build_selection(list(spec.selection), where=f"sample[{i + 1}]"))

@@ -13,21 +13,37 @@ models, with messages that name the sample, the key and the valid choices.
 from dataclasses import asdict, dataclass, fields
 from typing import ClassVar
 
+from functools import lru_cache
+
 import numpy as np
-from astropy import constants as const
-from astropy import units as u
 
 from .. import background
 from ..errors import ConfigError
 from ..interpolation import UniformTable
 
-#: Eddington luminosity per solar mass, 4π G Msun m_p c / σ_T (ionised hydrogen), erg/s.
-#: 1.257e38 erg/s with astropy's CODATA 2022 constants ([computed] with astropy constants).
-L_EDD_PER_MSUN = float((4 * np.pi * const.G * const.M_sun * const.m_p * const.c / const.sigma_T)
-                       .to_value(u.erg / u.s))
-#: Gravitational constant in pc (km/s)^2 / Msun (4.3009e-3, computed with astropy constants).
-G_PC_KMS2_PER_MSUN = float(const.G.to_value(u.pc * u.km**2 / u.s**2 / u.Msun))
-ARCSEC_IN_RAD = float((1 * u.arcsec).to_value(u.rad))
+
+
+@lru_cache(maxsize=None)
+def physical_constants() -> dict:
+    """Constants of the selection models, from astropy's (imported here, on first use):
+    L_EDD_PER_MSUN, the Eddington luminosity per solar mass 4π G Msun m_p c / σ_T (ionised hydrogen,
+    erg/s; 1.257e38 with CODATA 2022); G_PC_KMS2_PER_MSUN, G in pc (km/s)² / Msun (4.3009e-3);
+    ARCSEC_IN_RAD. Also readable as module attributes of these names."""
+    from astropy import constants as const
+    from astropy import units as u
+
+    return {"L_EDD_PER_MSUN": float((4 * np.pi * const.G * const.M_sun * const.m_p * const.c / const.sigma_T)
+                                    .to_value(u.erg / u.s)),
+            "G_PC_KMS2_PER_MSUN": float(const.G.to_value(u.pc * u.km**2 / u.s**2 / u.Msun)),
+            "ARCSEC_IN_RAD": float((1 * u.arcsec).to_value(u.rad))}
+
+
+def __getattr__(name):
+    if name in ("L_EDD_PER_MSUN", "G_PC_KMS2_PER_MSUN", "ARCSEC_IN_RAD"):
+        return physical_constants()[name]
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
+
+
 #: Thresholds are floored here (e.g. at z = 0, where every object passes a flux or SOI limit).
 MIN_LOG_MASS = -100.0
 _DIRECT_MAX = 512  # above this many redshifts, distances come from a table
@@ -104,7 +120,8 @@ class FluxLimit:
     def threshold(self, z, log_mstar, cosmo):
         """(m_lim, w) arrays, log10 Msun and dex."""
         d_l = _distance(background.luminosity_distance_cm, cosmo, z)
-        limit = self.bolometric_correction * 4.0 * np.pi * d_l**2 * self.flux_limit / L_EDD_PER_MSUN
+        l_edd = physical_constants()["L_EDD_PER_MSUN"]
+        limit = self.bolometric_correction * 4.0 * np.pi * d_l**2 * self.flux_limit / l_edd
         m_lim = np.maximum(_log10_floor(limit) - self.log_edd_mean, MIN_LOG_MASS)
         m_lim = m_lim + np.zeros(np.shape(log_mstar))
         return m_lim, np.full(m_lim.shape, self.log_edd_width)
@@ -143,8 +160,9 @@ class SphereOfInfluence:
     def threshold(self, z, log_mstar, cosmo):
         """(m_lim, w) arrays, log10 Msun and dex."""
         d_a_pc = _distance(background.angular_diameter_distance_mpc, cosmo, z) * 1e6
-        theta = self.resolution_arcsec * ARCSEC_IN_RAD
-        log_scale = _log10_floor(d_a_pc * theta * self.sigma_pivot**2 / G_PC_KMS2_PER_MSUN)
+        theta = self.resolution_arcsec * physical_constants()["ARCSEC_IN_RAD"]
+        g_pc = physical_constants()["G_PC_KMS2_PER_MSUN"]
+        log_scale = _log10_floor(d_a_pc * theta * self.sigma_pivot**2 / g_pc)
         b = self.msigma_slope
         m_lim = np.maximum((b * log_scale - 2.0 * self.msigma_intercept) / (b - 2.0), MIN_LOG_MASS)
         m_lim = m_lim + np.zeros(np.shape(log_mstar))
