@@ -93,7 +93,7 @@ def test_plain_likelihood_reuses_its_temporaries_without_changing_values(small_f
     again = [moments.log_likelihood(t.copy()) for t in reversed(thetas)][::-1]
     for a, b in zip(first, again):
         np.testing.assert_array_equal(a, b)
-    assert moments._scratch[0].shape == (16, moments.n_obj)  # kept for the next call of 16 walkers
+    assert moments._scratch[0].shape == (32, moments.n_obj)  # grown to the largest call, reused by smaller ones
     assert pickle.loads(pickle.dumps(moments))._scratch is None  # buffers are not shipped
 
 
@@ -118,3 +118,32 @@ def test_legend_goes_to_the_emptiest_corner_of_a_large_scatter():
     assert legend_place(ax, x[:100], y[:100]) == "best"  # few points: matplotlib's own search
     assert legend_place(ax, x, y) == "upper left"
     plt.close(fig)
+
+
+@pytest.mark.parametrize("form", ["ratio", "relation"])
+def test_rows_with_equal_weights_share_their_sums_in_large_catalogues(form):
+    # a gradient's or Hessian's points move one parameter at a time: at N >= 20 000 rows with the
+    # same scatter (and beta) share the O(N) weighted sums; values equal those of one row at a time
+    from cosmogrow.data.catalog import Catalog
+    from cosmogrow.model.likelihood import CoupledGrowthModel, build_design
+    from cosmogrow.model.moments import SHARED_SUMS_MIN_OBJECTS
+    from cosmogrow.config import ModelOptions
+
+    rng = np.random.default_rng(5)
+    n = SHARED_SUMS_MIN_OBJECTS
+    z = np.where(np.arange(n) < n // 2, 0.02, 1.0)
+    s = rng.normal(11, 0.3, n)
+    catalog = Catalog.from_columns(z=z, log_mbh=8.5 + (s - 11) + rng.normal(0, 0.3, n), log_mbh_err=rng.uniform(0.05, 0.3, n),
+                                   log_mstar=s, log_mstar_err=np.full(n, 0.1), sample=np.where(z < 0.1, "a", "b"),
+                                   method=np.where(rng.random(n) < 0.5, "dynamical", "virial"))
+    options = ModelOptions(form=form)
+    model = CoupledGrowthModel(build_design(catalog, options), options)
+    centre = model.initial_guess()
+    points = np.repeat(centre[None, :], 2 * model.ndim + 1, axis=0)
+    for i in range(model.ndim):
+        points[1 + i, i] += 1e-4
+        points[1 + model.ndim + i, i] -= 1e-4
+    shared = model._moments.log_likelihood(points.copy())
+    one_by_one = np.array([model._moments.log_likelihood(row[None, :].copy())[0] for row in points])
+    np.testing.assert_allclose(shared, one_by_one, rtol=1e-12, atol=0)
+    assert len(np.unique(points[:, model._moments._weight_columns], axis=0)) < len(points)

@@ -4,6 +4,9 @@ model shares with it."""
 import numpy as np
 
 LOG_2PI = np.log(2.0 * np.pi)
+#: Catalogues from this size share the weighted sums of rows with equal weights (where the O(N)
+#: work dominates the per-call overhead).
+SHARED_SUMS_MIN_OBJECTS = 20_000
 
 
 class GaussianMoments:
@@ -46,6 +49,8 @@ class GaussianMoments:
         self._group_matrix = (np.eye(groups)[d.scatter_index].T.copy() if groups > 1 else None)
         self._multiplicity = np.where(self.upper[0] == self.upper[1], 1.0, 2.0)
         self._linear = np.array(self.linear_index, dtype=np.intp)
+        weights = list(np.arange(layout.ndim)[layout.scatter])
+        self._weight_columns = np.array(weights + ([layout.index_beta] if model.relation else []), dtype=np.intp)
         self._scratch = None
 
     def __getstate__(self):
@@ -54,12 +59,29 @@ class GaussianMoments:
     def _buffers(self, walkers):
         """Two (walkers, objects) arrays kept between calls. At 1e6 objects a fresh 128 MB
         temporary per call costs more in page faults and zeroing (system time) than the arithmetic."""
-        if self._scratch is None or self._scratch[0].shape[0] != walkers:
+        if self._scratch is None or self._scratch[0].shape[0] < walkers:
             self._scratch = (np.empty((walkers, self.n_obj)), np.empty((walkers, self.n_obj)))
-        return self._scratch
+        return self._scratch[0][:walkers], self._scratch[1][:walkers]
 
     def log_likelihood(self, theta, batches=None):
-        """Log likelihood of every row of theta; `batches`: see `CoupledGrowthModel.log_prob`."""
+        """Log likelihood of every row of theta; `batches`: see `CoupledGrowthModel.log_prob`.
+
+        The per-object weights depend on the scatter (and beta) only: in a large catalogue, rows
+        sharing them (the finite-difference points of a gradient or Hessian, which move one
+        parameter at a time) share the O(N) work, done once per distinct weight vector. The sums
+        then come from products over fewer rows, equal to round-off; below `SHARED_SUMS_MIN_OBJECTS`
+        every row is computed as before, so small fits repeat their chains bit for bit."""
+        if len(theta) > 2 and self.n_obj >= SHARED_SUMS_MIN_OBJECTS:
+            _, first, inverse = np.unique(theta[:, self._weight_columns], axis=0, return_index=True,
+                                          return_inverse=True)
+            if len(first) < len(theta):
+                log_det, sums = self._weighted_sums(theta[first], None)
+                inverse = inverse.reshape(-1)
+                return self._combine(theta, log_det[inverse], sums[inverse])
+        return self._combine(theta, *self._weighted_sums(theta, batches))
+
+    def _weighted_sums(self, theta, batches):
+        """log det V and the weighted feature sums of each row, both O(N) per row."""
         model = self.model
         layout = model.layout
         var, tmp = self._buffers(theta.shape[0])
@@ -76,7 +98,10 @@ class GaussianMoments:
         else:
             np.add(sig2_obj, self._ev_ratio, out=var)
         log_det = np.log(var, out=tmp).sum(axis=1)
-        sums = product(np.reciprocal(var, out=var), self.features, batches)
+        return log_det, product(np.reciprocal(var, out=var), self.features, batches)
+
+    def _combine(self, theta, log_det, sums):
+        """The log likelihood of each row from its weighted sums and its linear parameters."""
         p = self.p
         n_cross = len(self.upper[0])
         lin = theta.take(self._linear, axis=1)
