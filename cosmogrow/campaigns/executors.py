@@ -46,11 +46,9 @@ class SerialExecutor:
 
 
 def _install_context(parent_pid, context_bytes):
-    # Runs in a freshly spawned worker before numpy is imported (this module does not import it
-    # and the context arrives pickled), so the thread limits take effect.
+    # The worker's BLAS thread limits are already in the environment it was spawned with
+    # (`ProcessExecutor.map_unordered`): setting them here would come after numpy's import.
     die_with_parent(parent_pid)
-    for name, value in SINGLE_THREAD_ENV.items():
-        os.environ.setdefault(name, value)
     _WORKER_CONTEXT["context"] = pickle.loads(context_bytes)
 
 

@@ -67,9 +67,6 @@ class CoupledGrowthModel:
         self.relation = options.form == "relation"
         self.gamma = float(options.host_growth)
         self._build_layout()
-        self._ev_ratio = design.m_err**2 + design.s_err**2
-        self._m_err2 = design.m_err**2
-        self._s_err2 = design.s_err**2
         self._all_rows = _Rows.of(design)
         # the selection correction bound to the data, evaluated on the rows it corrects only
         self._correction = None
@@ -283,7 +280,7 @@ class CoupledGrowthModel:
         design_matrix = np.column_stack(columns)
         coef, *_ = np.linalg.lstsq(design_matrix, target, rcond=None)
         resid = target - design_matrix @ coef
-        scatter = np.sqrt(max(np.var(resid) - np.mean(self._ev_ratio), 0.05**2))
+        scatter = np.sqrt(max(np.var(resid) - np.mean(self._all_rows.ev_ratio), 0.05**2))
         layout = self.layout
         theta = np.empty(self.ndim)
         theta[layout.index_k] = coef[2 if self.relation else 1]
