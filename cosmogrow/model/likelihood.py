@@ -219,9 +219,10 @@ class CoupledGrowthModel:
         return latent_mean(_column(theta, layout.index_alpha), beta, k_eff, rows.s_centred, rows.x,
                            host_offset=host)
 
-    def _latent(self, theta, rows=None):
+    def _latent(self, theta, rows=None, total=True):
         """Per object and walker: latent mean mu_true, offset delta, latent variance var_lat and the
-        total variance of m_obs (docs/method.md#model), on `rows` (a `_Rows`; default all rows)."""
+        total variance of m_obs (docs/method.md#model; None when `total` is False), on `rows` (a
+        `_Rows`; default all rows)."""
         rows = self._all_rows if rows is None else rows
         layout = self.layout
         beta = _column(theta, layout.index_beta) if self.relation else 1.0
@@ -234,10 +235,10 @@ class CoupledGrowthModel:
         mu_true = self._mean(theta, rows)
         if self.relation:
             var_lat = sig2_obj + beta**2 * rows.s_err2
-            var = var_lat + rows.m_err2
+            var = var_lat + rows.m_err2 if total else None
         else:
             var_lat = sig2_obj + rows.s_err2
-            var = sig2_obj + rows.ev_ratio
+            var = sig2_obj + rows.ev_ratio if total else None
         return mu_true, delta, var_lat, var
 
     def _selection_chunk(self, theta, batches=None):
@@ -245,7 +246,7 @@ class CoupledGrowthModel:
         log_like = self._moments.log_likelihood(theta, batches)
         if self._correction is None:
             return log_like
-        mu_true, delta, var_lat, _ = self._latent(theta, self._corrected_rows)
+        mu_true, delta, var_lat, _ = self._latent(theta, self._corrected_rows, total=False)
         correction = self._correction(mu_true, delta, var_lat)
         rows = self._correction.rows
         if len(rows) != len(self.design.m_obs) or np.any(rows[1:] < rows[:-1]):

@@ -172,8 +172,8 @@ class SelectionSet:
         for group in self._groups:
             rows = group.rows
             terms = GroupTerms(group.kind, group.lim, group.w2, pick(m_obs, rows), pick(m_err, rows) ** 2)
-            num, norm = terms(pick(mu_true, rows), pick(delta, rows), pick(var_lat, rows))
-            out[..., rows] = num - norm
+            part = np.empty(shape[:-1] + (len(group.lim[0]),))
+            out[..., rows] = terms.write(pick(mu_true, rows), pick(delta, rows), pick(var_lat, rows), part)
         return out
 
     def bind(self, m_obs, m_err) -> BoundCorrection:

@@ -85,12 +85,14 @@ def log_phi(x, *, overwrite_input=False):
     return float(out[0]) if scalar else out
 
 
-def log_upper_orthant(h, k, rho):
+def log_upper_orthant(h, k, rho, *, independent=None):
     """log P(X > h, Y > k) for standard normals X, Y with correlation rho in [0, 1].
 
     Parameters
     ----------
     h, k, rho : array_like, broadcast together
+    independent : callable (h, k, rho, log_h, log_k, order) -> log P on 1-d arrays, optional; the
+        branch rho < 0.925 (e.g. the compiled one of `selection.kernels`), clipped to the bounds
 
     Returns
     -------
@@ -112,7 +114,10 @@ def log_upper_orthant(h, k, rho):
                                                              log_h[select], log_k[select]]
             # one quadrature order for the whole call, whatever the blocks
             order = _order(parts[2]) if branch is _from_independent else _order(1.0)
-            value = _in_blocks(branch, order, *parts)
+            if branch is _from_independent and independent is not None:
+                value = independent(*parts, order)
+            else:
+                value = _in_blocks(branch, order, *parts)
             if every:
                 out = value
             else:

@@ -15,6 +15,7 @@ evaluation of `SelectionSet.log_correction` (identical results, bit for bit).
 
 import numpy as np
 
+from . import kernels
 from .probit import log_phi, log_upper_orthant
 
 
@@ -54,6 +55,32 @@ class GroupTerms:
             self.spread_free = e2 + w2[0]
         if kind == "i":
             self.obs_above = m_obs - 0.0 - lim[0]  # (m_obs - delta - l) at delta = 0
+        # the compiled loops' per-object arrays (one observed or one intrinsic cut)
+        self.compiled = None
+        if kernels.AVAILABLE:
+            n = np.shape(lim[0])[-1]
+            if kind == "o":
+                per_object = (lim[0], self.spread_free)
+            elif kind == "i":
+                per_object = (lim[0], w2[0], m_obs, e2)
+            else:  # two cuts
+                per_object = (*lim, *w2, m_obs, e2)
+            self.compiled = kernels.PerObject(per_object, n)
+
+    def write(self, mu, delta, var, out):
+        """out[...] = num - norm (see __call__); `out` holds the group's rows on its contiguous last
+        axis. One compiled pass when the kernels are built (two cuts: while every correlation is
+        below 0.925), numpy otherwise."""
+        if self.compiled is not None and kernels.usable(mu, delta, var, out_shape=out.shape):
+            if self.kind == "o":
+                return kernels.cut_observed(mu, delta, var, self.compiled, out)
+            if self.kind == "i":
+                return kernels.cut_intrinsic(mu, delta, var, self.compiled, True, out)
+            if kernels.two_cuts(self.kind, mu, delta, var, self.compiled, out):
+                return out
+        num, norm = self(mu, delta, var)
+        np.subtract(num, norm, out=out)
+        return out
 
     def __call__(self, mu, delta, var, numerator=True):
         """Parameters: mu (latent mean, log10 Msun), delta (method offset, dex, or 0.0), var
@@ -70,8 +97,8 @@ class GroupTerms:
             var1, var2 = var + e2 + w2[0], var + e2 + w2[1]
             rho = (var + e2) / np.sqrt(var1 * var2)
             centre = mu + delta
-            return 0.0, log_upper_orthant((lim[0] - centre) / np.sqrt(var1),
-                                          (lim[1] - centre) / np.sqrt(var2), rho)
+            return 0.0, _log_upper_orthant((lim[0] - centre) / np.sqrt(var1),
+                                           (lim[1] - centre) / np.sqrt(var2), rho)
         num = 0.0
         if numerator:
             total = var + e2
@@ -85,8 +112,8 @@ class GroupTerms:
             return num, _orthant(mu, var, lim, w2)
         var1, var2 = var + w2[0], var + e2 + w2[1]  # "io": intrinsic first, observed second
         rho = var / np.sqrt(var1 * var2)
-        return num, log_upper_orthant((lim[0] - mu) / np.sqrt(var1),
-                                      (lim[1] - mu - delta) / np.sqrt(var2), rho)
+        return num, _log_upper_orthant((lim[0] - mu) / np.sqrt(var1),
+                                       (lim[1] - mu - delta) / np.sqrt(var2), rho)
 
     def _single_intrinsic(self, mu, delta, var, numerator):
         """One intrinsic cut: (log Φ((mu_p - l)/sqrt(v + w²)), log Φ((mu - l)/sqrt(var + w²))).
@@ -120,7 +147,12 @@ def _orthant(centre, var, lim, w2):
     """log P(two probit cuts on one variable ~ N(centre, var))."""
     var1, var2 = var + w2[0], var + w2[1]
     rho = var / np.sqrt(var1 * var2)
-    return log_upper_orthant((lim[0] - centre) / np.sqrt(var1), (lim[1] - centre) / np.sqrt(var2), rho)
+    return _log_upper_orthant((lim[0] - centre) / np.sqrt(var1), (lim[1] - centre) / np.sqrt(var2), rho)
+
+
+def _log_upper_orthant(h, k, rho):
+    """probit.log_upper_orthant, with its rho < 0.925 branch compiled when the kernels are built."""
+    return log_upper_orthant(h, k, rho, independent=kernels.orthant_independent if kernels.AVAILABLE else None)
 
 
 class BoundCorrection:
@@ -142,6 +174,10 @@ class BoundCorrection:
             index = np.arange(n_rows) if isinstance(group.rows, slice) else np.asarray(group.rows)
             lim, w2 = group.lim, group.w2
             m_obs_g, e2 = pick(m_obs, group.rows), pick(m_err, group.rows) ** 2
+            if np.any(index[1:] < index[:-1]):  # catalogue order, so a group of every row needs no scatter
+                order = np.argsort(index, kind="stable")
+                index, lim, w2 = index[order], tuple(a[order] for a in lim), tuple(a[order] for a in w2)
+                m_obs_g, e2 = (_cut(a, order) for a in (m_obs_g, e2))
             blocks = []
             for first in range(0, len(index), _BLOCK_COLUMNS):
                 cut = slice(first, first + _BLOCK_COLUMNS)
@@ -168,10 +204,12 @@ class BoundCorrection:
         out = np.empty(shape)
         per_column = int(np.prod(shape[:-1]))
         for cols, terms, blocks in self._parts:
+            if terms.compiled is not None:  # one pass, no temporaries: no blocks needed
+                terms.write(mu[..., cols], _columns(delta, cols), var[..., cols], out[..., cols])
+                continue
             pieces = blocks if per_column * (cols.stop - cols.start) > _BLOCK_ELEMENTS else ((cols, terms),)
             for part, part_terms in pieces:
-                num, norm = part_terms(mu[..., part], _columns(delta, part), var[..., part])
-                out[..., part] = num - norm
+                part_terms.write(mu[..., part], _columns(delta, part), var[..., part], out[..., part])
         return out
 
 
