@@ -116,9 +116,11 @@ def main():
             if n >= 1_000_000:
                 rows.append(row("peak memory of `cosmogrow fit`, N = 10⁶", "≤ 1.5 GB", f"{peak:.2f} GB",
                                 peak <= 1.5))
-            share = timings.get("crosscheck", 0.0) / timings["total"]
+            # its own seconds (run beside the sampling, in a second process, the wait is ~0)
+            own = timings.get("beside", {}).get("crosscheck", timings.get("crosscheck", 0.0))
+            share = own / timings["total"]
             rows.append(row(f"cross-check share of the fit's stages, N = {power(n)}", "≤ 10 %",
-                            f"{100 * share:.1f} % ({timings.get('crosscheck', 0.0):.2f} s)", share <= 0.10))
+                            f"{100 * share:.1f} % ({own:.2f} s)", share <= 0.10))
     print(f"load average after: {os.getloadavg()[0]:.2f}")
     emit(rows)
 

@@ -6,6 +6,8 @@ The likelihood is the fit's own (cosmogrow.model), evaluated for 32 walkers at o
 thread as `cosmogrow` runs it. The plain and the selection-aware likelihood are called alternately
 (interleaved) and each is timed per call in CPU time of this process (the figure: robust when other
 jobs share the cores) and in wall time; the minimum over the calls is kept.
+The selection-aware likelihood is timed with the compiled loops (selection/_kernels.c) and, for
+comparison, with numpy alone (as installed without a C compiler).
 Run: .venv/bin/python analysis/bench_selection.py
 With glibc's default allocator settings, each (walkers, N) temporary may be handed back to the system
 and page-faulted in again, so the plain reference alone jumps between 0.2 and 0.9 ms from one row to
@@ -26,6 +28,7 @@ from bench_table import emit, row  # noqa: E402
 from cosmogrow.data.catalog import Catalog  # noqa: E402
 from cosmogrow.config import ModelOptions  # noqa: E402
 from cosmogrow.model.likelihood import CoupledGrowthModel, build_design  # noqa: E402
+from cosmogrow.selection import kernels  # noqa: E402
 from cosmogrow.selection.compiled import SelectionSet  # noqa: E402
 from cosmogrow.simulation.population import simulate_population  # noqa: E402
 
@@ -75,24 +78,41 @@ def likelihood_ratios(n=1000, walkers=32, repeat=300):
           "the plain likelihood object by object (the reference of the target), 'moments' the plain "
           "fit's own shortcut; ratios of per-call CPU time (wall time in brackets):")
     rows = []
+    compiled_loops = kernels.AVAILABLE
     for name, selections in SELECTIONS.items():
         selection = SelectionSet.compile(selections, catalog, Planck18)
         model = CoupledGrowthModel(design, options, selection=selection)
+        kernels.AVAILABLE = False  # the same model on numpy alone (as without a C compiler)
+        numpy_model = CoupledGrowthModel(design, options, selection=selection)
+        kernels.AVAILABLE = compiled_loops
         calls = (lambda: plain._log_likelihood_chunk(theta), lambda: plain.log_likelihood(theta),
                  lambda: model.log_likelihood(theta),
-                 lambda: selection.log_correction(mu, 0.0, var, catalog.log_mbh, catalog.log_mbh_err))
-        times = np.array([[_timed(call) for call in calls] for _ in range(repeat)])  # (repeat, 4, 2)
-        (c_plain, c_moments, c_sel, c_corr), (w_plain, _, w_sel, _) = times.min(axis=0).T * 1e3
+                 lambda: selection.log_correction(mu, 0.0, var, catalog.log_mbh, catalog.log_mbh_err),
+                 lambda: _without_kernels(numpy_model.log_likelihood, theta))
+        times = np.array([[_timed(call) for call in calls] for _ in range(repeat)])  # (repeat, 5, 2)
+        (c_plain, c_moments, c_sel, c_corr, c_numpy), (w_plain, _, w_sel, _, _) = times.min(axis=0).T * 1e3
         ratio = c_sel / c_plain
         print(f"  {name:38s}: plain {c_plain:.3f} ms, moments {c_moments:.3f} ms, selection-aware "
               f"{c_sel:.3f} ms = {ratio:.2f}x plain ({w_sel / w_plain:.2f}x in wall time), "
-              f"{c_sel / c_moments:.1f}x moments; log_correction alone {c_corr:.3f} ms")
+              f"{c_sel / c_moments:.1f}x moments; log_correction alone {c_corr:.3f} ms; numpy alone "
+              f"{c_numpy:.3f} ms = {c_numpy / c_plain:.2f}x plain")
         target = TARGETS.get(name, 2.0)
+        loops = "compiled loops" if compiled_loops else "numpy: the compiled loops are not built"
         rows.append(row(f"selection-aware likelihood vs plain, {name}, N = {n}, {walkers} walkers "
-                        f"(CPU time per call, interleaved; load {os.getloadavg()[0]:.1f})",
+                        f"(CPU time per call, interleaved, {loops}; load {os.getloadavg()[0]:.1f})",
                         f"≤ {target:g}×", f"**{ratio:.2f}×** (wall {w_sel / w_plain:.2f}×; "
-                        f"{c_sel / c_moments:.1f}× the moments shortcut)", ratio <= target))
+                        f"{c_sel / c_moments:.1f}× the moments shortcut; numpy alone "
+                        f"{c_numpy / c_plain:.2f}×)", ratio <= target))
     return rows
+
+
+def _without_kernels(function, *args):
+    """Call with the compiled loops switched off (the two-cut orthant looks them up per call)."""
+    available, kernels.AVAILABLE = kernels.AVAILABLE, False
+    try:
+        return function(*args)
+    finally:
+        kernels.AVAILABLE = available
 
 
 def simulator_speed():

@@ -186,11 +186,17 @@ class StageTimes:
     """Wall-clock seconds spent in the named stages of a command (summary.json `timings`).
 
     A stage entered twice accumulates. `as_dict` lists the stages in the order first entered and
-    their total.
+    their total. Work done by another process while these stages ran is recorded with `beside`
+    (its own seconds; the stage that collected it counts only the wait) and listed under "beside".
     """
 
     def __init__(self):
         self.seconds = {}
+        self.beside_seconds = {}
+
+    def beside(self, name: str, seconds: float) -> None:
+        """Record `seconds` of work named `name` done beside the stages, in another process."""
+        self.beside_seconds[name] = self.beside_seconds.get(name, 0.0) + float(seconds)
 
     @contextlib.contextmanager
     def stage(self, name: str):
@@ -202,7 +208,10 @@ class StageTimes:
             self.seconds[name] = self.seconds.get(name, 0.0) + time.perf_counter() - start
 
     def as_dict(self) -> dict:
-        """{stage: seconds} rounded to milliseconds, with "total" (the sum of the stages)."""
+        """{stage: seconds} rounded to milliseconds, with "total" (the sum of the stages) and, when
+        any, "beside": {work: seconds} done in parallel (not in the total)."""
         out = {name: round(seconds, 3) for name, seconds in self.seconds.items()}
         out["total"] = round(sum(self.seconds.values()), 3)
+        if self.beside_seconds:
+            out["beside"] = {name: round(seconds, 3) for name, seconds in self.beside_seconds.items()}
         return out

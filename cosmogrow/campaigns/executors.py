@@ -10,12 +10,10 @@ and the number of workers change nothing but the speed.
 import multiprocessing
 import os
 import pickle
-import signal
-import threading
-import time
 from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
 
 from ..errors import ConfigError
+from ..inference.forked import die_with_parent
 
 _WORKER_CONTEXT = {}
 #: Worker processes run one BLAS thread each: the workers already fill the cores, and idle
@@ -67,38 +65,6 @@ def _restore_environment(saved: dict) -> None:
             os.environ.pop(name, None)
         else:
             os.environ[name] = value
-
-
-#: prctl option asking Linux to signal this process when its parent dies (linux/prctl.h).
-_PR_SET_PDEATHSIG = 1
-
-
-def die_with_parent(parent_pid: int) -> None:
-    """End this process whenever `parent_pid`, the process that started it, dies.
-
-    A pool's workers otherwise wait for work forever once the campaign process is killed (SIGKILL
-    gives it no chance to stop them). On Linux the kernel is asked to send SIGKILL at the parent's
-    death (prctl PR_SET_PDEATHSIG); a parent that died before that request, e.g. during the pool's
-    start-up, is caught by comparing the current parent with `parent_pid`, which the parent
-    recorded itself (a worker's own `os.getppid()` may already be its adoptive init). A watcher
-    thread repeats that comparison every second, for systems without prctl.
-    """
-    try:
-        import ctypes
-
-        libc = ctypes.CDLL(None, use_errno=True)
-        libc.prctl(_PR_SET_PDEATHSIG, signal.SIGKILL, 0, 0, 0)
-    except (OSError, AttributeError):  # pragma: no cover - not Linux: the watcher still works
-        pass
-    if os.getppid() != parent_pid:
-        os._exit(1)
-    threading.Thread(target=_exit_with_parent, args=(parent_pid,), daemon=True).start()
-
-
-def _exit_with_parent(parent_pid, every_s=1.0):
-    while os.getppid() == parent_pid:
-        time.sleep(every_s)
-    os._exit(1)
 
 
 def _call_with_worker_context(function, task):

@@ -23,6 +23,7 @@ from ..selection.compiled import SelectionSet, build_selection
 from .summary import (convergence_block, degeneracy_warnings, describe_parameters,
                       describe_samples, hypothesis_tests, offset_sensitivity)
 from .guards import identifiability, identifiability_warning, undeclared_methods_warning
+from .forked import Beside
 from .information import describe_information
 from .sensitivity import common_width, offset_subject, sensitivity_rows, significance_block
 from .verdicts import headline, verdict_options, verdicts_from_rows
@@ -115,7 +116,7 @@ def build_model(config, data: FitData, *, selection_aware: bool = True, catalog:
 
 def run_fit(config, data: FitData, *, chain_path=None, on_check=None, selection_aware: bool = True,
             verdicts: dict | None = None, chain_attrs: dict | None = None, timer: StageTimes | None = None,
-            on_sampled=None) -> FitResult:
+            on_sampled=None, parallel: bool = False) -> FitResult:
     """MAP, Laplace, MCMC and the summary of one run (`chain_attrs`: see inference.resume).
 
     Parameters
@@ -133,36 +134,51 @@ def run_fit(config, data: FitData, *, chain_path=None, on_check=None, selection_
     seconds of the stages "map" (model, parent host priors, MAP and Hessian), "sampling",
     "sensitivity", "verdicts", "significance" and "crosscheck".
 
+    With `parallel` (the command line sets it; forked processes are no place for a notebook's
+    threads), work that needs no result of the stages before it runs in a forked second process
+    (`inference.forked.Beside`): the cross-check while the parent finds the MAP and samples, and in
+    large catalogues half of the verdicts' profile fits. The results are those of the serial run.
+
     Returns
     -------
     FitResult
     """
     timer = StageTimes() if timer is None else timer
-    with timer.stage("map"):
-        model = build_model(config, data, selection_aware=selection_aware)
-        approx = laplace(model)
-    with timer.stage("crosscheck"):  # needs only the catalogue: done before the figures are drawn
-        crosscheck = run_crosscheck(config, data.catalog)
-    with timer.stage("sampling"):
-        chain = sample_posterior(model, approx, config.sampler, seed=config.seed, chain_path=chain_path,
-                                 on_check=on_check, chain_attrs=chain_attrs)
+    # needs only the catalogue: beside the MAP and the sampling, or here before the figures are drawn
+    pending = Beside(run_crosscheck, config, data.catalog, enabled=parallel)
+    try:
+        with timer.stage("map"):
+            model = build_model(config, data, selection_aware=selection_aware)
+            approx = laplace(model)
+        if not pending.forked:
+            with timer.stage("crosscheck"):
+                crosscheck, _, _ = pending.result()
+        with timer.stage("sampling"):
+            chain = sample_posterior(model, approx, config.sampler, seed=config.seed, chain_path=chain_path,
+                                     on_check=on_check, chain_attrs=chain_attrs)
+        if pending.forked:
+            with timer.stage("crosscheck"):  # the wait only; its own seconds are listed beside
+                crosscheck, seconds, _ = pending.result()
+            timer.beside("crosscheck", seconds)
+    finally:
+        pending.close()
     if on_sampled is not None:
         on_sampled(model, chain)
-    summary = summarise(config, data, model, approx, chain, verdicts, timer, crosscheck)
+    summary = summarise(config, data, model, approx, chain, verdicts, timer, crosscheck, parallel=parallel)
     return FitResult(model=model, laplace=approx, chain=chain, summary=summary)
 
 
 def summarise(config, data: FitData, model: CoupledGrowthModel, approx, chain,
               verdicts: dict | None = None, timer: StageTimes | None = None,
-              crosscheck: dict | None = None) -> dict:
+              crosscheck: dict | None = None, parallel: bool = False) -> dict:
     """The summary.json content of a fit (`timer` collects the stages' wall times; `crosscheck`, the
-    result of `run_crosscheck` when already computed)."""
+    result of `run_crosscheck` when already computed; `parallel`: see `run_fit`)."""
     timer = StageTimes() if timer is None else timer
     with timer.stage("sensitivity"):
         sensitivity = offset_sensitivity(model, approx)
     warnings = degeneracy_warnings(model, data.catalog, approx, sensitivity)
     with timer.stage("verdicts"):
-        judged = assess(config, data, model, approx, chain, verdicts)
+        judged = assess(config, data, model, approx, chain, verdicts, parallel=parallel, timer=timer)
     warnings = [line for line in judged.pop("warnings") if line] + warnings
     if not chain.converged:
         warnings.insert(0, f"the chain did not converge: {chain.n_steps} steps is "
@@ -216,12 +232,13 @@ def summarise(config, data: FitData, model: CoupledGrowthModel, approx, chain,
 
 
 def assess(config, data: FitData, model: CoupledGrowthModel, approx, chain,
-           verdicts: dict | None = None) -> dict:
+           verdicts: dict | None = None, *, parallel: bool = False, timer: StageTimes | None = None) -> dict:
     """Significances, sensitivity rows, verdicts, information shares and identifiability of a fit
-    (docs/method.md#verdicts)."""
+    (docs/method.md#verdicts; `parallel`, `timer`: see `run_fit`)."""
     options = verdicts or verdict_options(config.raw.get("verdicts", {}), config.source)
     k_draws = chain.samples[:, model.index_k]
-    rows = sensitivity_rows(model, approx, k_draws, options["k_refs"], seed=child_seed(config.seed, 2))
+    rows = sensitivity_rows(model, approx, k_draws, options["k_refs"], seed=child_seed(config.seed, 2),
+                            parallel=parallel, timer=timer)
     judged = verdicts_from_rows(rows, options["k_refs"], options["threshold"], common_width(model),
                                 offset_subject(model))
     guard = identifiability(k_draws, model.priors["k"], data.catalog.z)

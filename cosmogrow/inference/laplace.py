@@ -138,8 +138,8 @@ def find_map(model, start=None, fixed=None):
                                    bounds=bounds, options={"maxiter": 2000, "ftol": 1e-12, "gtol": 1e-6})
         if best is None or result.fun < best.fun:
             best = result
-        if result.success:
-            break
+        if result.success or np.array_equal(result.x, start_points[-1]):
+            break  # converged, or a retry that did not move: another would repeat it exactly
         start_points.append(result.x)
     theta = theta0.copy()
     theta[free] = best.x

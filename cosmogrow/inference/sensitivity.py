@@ -18,6 +18,8 @@ report), and the k prior range halved and doubled (only the Bayes factor and a t
 import numpy as np
 from scipy import stats
 
+from ..seeding import child_seed
+from .forked import Beside
 from .laplace import find_map, laplace
 from .summary import describe_weighted, savage_dickey, wilks_sigma
 from .verdicts import WIDTH_SCALES, k_key
@@ -26,6 +28,8 @@ from .verdicts import WIDTH_SCALES, k_key
 # σ(k) shrinks as 1/√N, so fewer draws at large N keep the Monte Carlo error far below 0.05 in k.
 DRAW_BUDGET = 1_500_000
 MIN_DRAWS, MAX_DRAWS = 400, 6000
+# Catalogues from this size compute half of the sensitivity rows in a second process (when asked).
+PARALLEL_MIN_OBJECTS = 50_000
 # Student-t proposal for the importance reweighting: heavier tails than the Laplace Gaussian.
 PROPOSAL_DF = 5
 
@@ -113,17 +117,27 @@ class ConstrainedLikelihood:
         return out
 
 
-def profile_significances(objective, k_refs, start):
+def profile_significances(objective, k_refs, start, covariance=None):
     """σ-equivalents √Λ(k₀) of the profile ratio of `objective` against each reference k.
+
+    With `covariance` (e.g. the Laplace covariance of the posterior), each fit at fixed k starts
+    from the Gaussian's conditional mean of the other parameters at that k instead of the maximum
+    (fewer iterations; the same maximum).
 
     Returns
     -------
     theta_max : ndarray, the maximum; sigmas : dict {k_key(k0): σ}
     """
     theta, log_max, _ = find_map(objective, start)
+    index_k = objective.index_k
     fixed = {}
     for k_ref in k_refs:
-        point, value, _ = find_map(objective, theta, fixed={objective.index_k: float(k_ref)})
+        begin = theta
+        if covariance is not None and covariance[index_k, index_k] > 0:
+            begin = theta + covariance[:, index_k] / covariance[index_k, index_k] * (k_ref - theta[index_k])
+            if not np.all(np.isfinite(begin)):
+                begin = theta
+        point, value, _ = find_map(objective, begin, fixed={index_k: float(k_ref)})
         if value > log_max:  # the free maximisation stopped short: take the better point
             theta, log_max = point, value
         fixed[k_key(k_ref)] = value
@@ -165,7 +179,8 @@ def default_draws(n_objects):
     return int(np.clip(DRAW_BUDGET // max(n_objects, 1), MIN_DRAWS, MAX_DRAWS))
 
 
-def sensitivity_rows(model, approx, k_draws, k_refs, *, n_draws=None, seed=None):
+def sensitivity_rows(model, approx, k_draws, k_refs, *, n_draws=None, seed=None, parallel=False,
+                     timer=None):
     """The sensitivity table of a fit (docs/method.md#verdicts).
 
     Parameters
@@ -175,46 +190,76 @@ def sensitivity_rows(model, approx, k_draws, k_refs, *, n_draws=None, seed=None)
     k_draws : ndarray, posterior draws of k from the MCMC chain (the configured row)
     k_refs : sequence of float, reference k values (0, 3 and claims)
     n_draws : int, importance-sampling draws per reweighted row (default `default_draws`)
-    seed : int or SeedSequence for the proposal draws
+    seed : int or SeedSequence; reweighted row j draws from `seeding.child_seed(seed, j)`
+    parallel : bool, in catalogues of at least PARALLEL_MIN_OBJECTS objects compute two of the rows
+        in a forked process (`inference.forked.Beside`; the same rows as serially)
+    timer : outputs.StageTimes, optional; receives the forked rows' seconds as work done beside
 
     Returns
     -------
     list of dict rows {setting, value, label, k_median, k_interval68, sigma_vs_k0, sigma_vs_k3,
     sigma_by_k, bayes_factor_k0, k_prior, k_prior_width, method, effective_draws}
     """
-    rng = np.random.default_rng(seed)
     n_draws = n_draws or default_draws(len(model.design.m_obs))
     k_range = tuple(model.priors["k"])
     has_offsets = offset_constraints(model)[0].size > 0
     scales = WIDTH_SCALES if has_offsets else (1.0,)
-    rows, configured = [], None
-    for scale in scales:
-        best, sigmas = profile_significances(ConstrainedLikelihood(model, scale), k_refs, approx.theta)
-        if scale == 1.0:
-            configured = sigmas
-            k = describe_weighted(k_draws)
-            bayes = savage_dickey(k_draws, k_range)["value"]
-            method, ess = "MCMC (the fit itself)", float(len(k_draws))
-        else:
-            inside = np.clip(best, model.lower, model.upper)  # the k prior range applies here
-            draws, weights, ess = reweighted_draws(ConstrainedLikelihood(model, scale, k_range),
-                                                   inside, n_draws, rng)
-            k = describe_weighted(draws[:, model.index_k], weights)
-            bayes = savage_dickey(draws[:, model.index_k], k_range, weights=weights)["value"]
-            method = "Laplace + importance reweighting"
-        setting = "offset_width_scale" if has_offsets else "as_configured"
-        rows.append(_row(setting, scale, offset_label(model, scale), k, sigmas, bayes, k_range,
-                         method, ess))
+    jobs = [(_scale_row, (model, approx, k_draws, k_refs, scale, n_draws, child_seed(seed, j)))
+            for j, scale in enumerate(scales)]
     if has_offsets:
-        rows.append(_unconstrained_row(model, approx, k_refs, k_range))
+        jobs.append((_unconstrained_row, (model, approx, k_refs, k_range)))
+    rows = [None] * len(jobs)
+    split = parallel and len(jobs) > 1 and len(model.design.m_obs) >= PARALLEL_MIN_OBJECTS
+    # rows computed beside, in a child: the first and the last (with offsets: ⅓× and unconstrained),
+    # so that the two reweighted rows, the costly ones, run one in each process
+    there = [0, len(jobs) - 1] if split else []
+    pending = Beside(_run_jobs, [jobs[i] for i in there], enabled=split)
+    try:
+        for i, (function, args) in enumerate(jobs):
+            if i not in there:
+                rows[i] = function(*args)
+        if there:
+            values, seconds, _ = pending.result()
+            if timer is not None and pending.forked:
+                timer.beside("verdicts", seconds)
+            for i, row in zip(there, values):
+                rows[i] = row
+    finally:
+        pending.close()
+    configured = next(row["sigma_by_k"] for row in rows if row["value"] == 1.0)
     rows += [_k_range_row(k_draws, k_range, factor, configured) for factor in (0.5, 2.0)]
     return rows
+
+
+def _run_jobs(jobs):
+    return [function(*args) for function, args in jobs]
+
+
+def _scale_row(model, approx, k_draws, k_refs, scale, n_draws, seed):
+    """The row with the offset constraints at `scale` times their widths (1.0: the chain itself)."""
+    k_range = tuple(model.priors["k"])
+    has_offsets = offset_constraints(model)[0].size > 0
+    best, sigmas = profile_significances(ConstrainedLikelihood(model, scale), k_refs, approx.theta,
+                                         approx.covariance)
+    if scale == 1.0:
+        k = describe_weighted(k_draws)
+        bayes = savage_dickey(k_draws, k_range)["value"]
+        method, ess = "MCMC (the fit itself)", float(len(k_draws))
+    else:
+        inside = np.clip(best, model.lower, model.upper)  # the k prior range applies here
+        draws, weights, ess = reweighted_draws(ConstrainedLikelihood(model, scale, k_range), inside,
+                                               n_draws, np.random.default_rng(seed))
+        k = describe_weighted(draws[:, model.index_k], weights)
+        bayes = savage_dickey(draws[:, model.index_k], k_range, weights=weights)["value"]
+        method = "Laplace + importance reweighting"
+    setting = "offset_width_scale" if has_offsets else "as_configured"
+    return _row(setting, scale, offset_label(model, scale), k, sigmas, bayes, k_range, method, ess)
 
 
 def _unconstrained_row(model, approx, k_refs, k_range):
     """Offsets free: maximum-likelihood k, its profile-curvature interval and the significances."""
     objective = ConstrainedLikelihood(model, None)
-    theta, sigmas = profile_significances(objective, k_refs, approx.theta)
+    theta, sigmas = profile_significances(objective, k_refs, approx.theta, approx.covariance)
     curvature = laplace(objective, theta)
     k_hat, k_std = float(curvature.theta[model.index_k]), float(curvature.std[model.index_k])
     identified = np.isfinite(k_std) and k_std < (k_range[1] - k_range[0])

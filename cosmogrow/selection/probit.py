@@ -17,6 +17,9 @@ against 64-node quadrature of the same integrals: < 1e-8 for rho <= 0.7 and 0.8 
 rising to 7e-7 as rho approaches 0.8 (12 nodes) and to 1.4e-6 just above 0.925 (20 nodes from
 rho = 1); tested against adaptive quadrature and scipy's bivariate normal CDF. The quadrature runs
 on node-major (nodes, n) arrays in blocks of _BLOCK elements with reused scratch memory.
+
+`selection/kernels.py` runs the same table and quadrature as compiled loops (the likelihood's path
+when they are built); this module is their reference and the path without a compiler.
 """
 
 import numpy as np

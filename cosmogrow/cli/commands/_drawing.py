@@ -128,7 +128,7 @@ class FigureDrawers:
 def _serve(connections, parent_pid, folder, config, data):
     """The first drawer: import the plotting stack, fork the other drawers from here (so the stack is
     imported once), then draw the jobs of the first connection."""
-    from ...campaigns.executors import die_with_parent
+    from ...inference.forked import die_with_parent
 
     die_with_parent(parent_pid)
     from ...report import check_figures, fit_figures  # noqa: F401  (imported now, while the parent samples)

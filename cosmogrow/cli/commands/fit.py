@@ -85,7 +85,8 @@ def run(args):
             result = run_fit(config, data, chain_path=stage / "chain.h5", selection_aware=not args.plain,
                              on_check=progress_printer(args.quiet), verdicts=verdicts,
                              chain_attrs=chain_attrs(fingerprint, config.seed), timer=timer,
-                             on_sampled=lambda model, chain: drawers.submit(chain_payloads(model, chain)))
+                             on_sampled=lambda model, chain: drawers.submit(chain_payloads(model, chain)),
+                             parallel=True)
             if not math.isfinite(result.summary["k"]["median"]):
                 raise CosmogrowError("the fit gave a non-finite k; nothing written (check the inputs' "
                                      "ranges and the [priors] table)")
@@ -138,11 +139,15 @@ def _worse_than_before(out, result):
 
 def format_timings(timings):
     """The stage timings as aligned lines, slowest first after the total."""
-    stages = sorted(((name, sec) for name, sec in timings.items() if name != "total"),
+    stages = sorted(((name, sec) for name, sec in timings.items() if name not in ("total", "beside")),
                     key=lambda item: -item[1])
     total = timings.get("total", 0.0) or 1.0
     lines = [f"stage timings (s): total {timings.get('total', 0.0):.2f}"]
     lines += [f"  {name:<13s}{sec:8.2f}  {100 * sec / total:5.1f} %" for name, sec in stages]
+    beside = timings.get("beside", {})
+    if beside:
+        lines.append("done beside the stages, in a second process (s): "
+                     + ", ".join(f"{name} {sec:.2f}" for name, sec in beside.items()))
     return "\n".join(lines)
 
 

@@ -1,0 +1,108 @@
+"""Work done beside the main process (inference.forked) gives the results of the serial run.
+
+- `Beside` returns the child's value and its seconds; without fork (or when disabled) the call runs
+  in the parent; when the child fails or is killed, the parent computes the value itself, so an
+  error surfaces where it would have serially;
+- the sensitivity rows split over two processes equal the serial rows exactly;
+- `run_fit(parallel=True)` (the command line's setting) gives the serial fit's summary: the
+  cross-check computed beside the sampling, the rows, verdicts and k identical.
+"""
+
+import os
+import signal
+import time
+
+import numpy as np
+import pytest
+
+import cosmogrow
+from cosmogrow.inference import sensitivity
+from cosmogrow.inference.fit import load_data, run_fit
+from cosmogrow.inference.forked import Beside, can_fork
+from cosmogrow.inference.laplace import laplace
+from cosmogrow.outputs import to_jsonable
+
+from mocks import mock_catalog, write_samples
+from test_significance import CONFOUNDED, make_model
+
+needs_fork = pytest.mark.skipif(not can_fork(), reason="needs fork and two cores")
+
+
+def _square_and_pid(x):
+    return x * x, os.getpid()
+
+
+def _fails(x):
+    raise ValueError(f"bad value {x}")
+
+
+def _sleeps_then_answers(x):
+    time.sleep(30)
+    return x
+
+
+@needs_fork
+def test_beside_runs_in_a_child_and_returns_its_value():
+    pending = Beside(_square_and_pid, 7)
+    assert pending.forked
+    (value, pid), seconds, _ = pending.result()
+    assert value == 49 and pid != os.getpid() and seconds >= 0
+
+
+def test_disabled_runs_in_the_parent():
+    pending = Beside(_square_and_pid, 3, enabled=False)
+    assert not pending.forked
+    (value, pid), _, _ = pending.result()
+    assert value == 9 and pid == os.getpid()
+
+
+@needs_fork
+def test_an_error_in_the_child_surfaces_in_the_parent():
+    pending = Beside(_fails, 2)
+    with pytest.raises(ValueError, match="bad value 2"):
+        pending.result()
+
+
+@needs_fork
+def test_a_killed_child_is_replaced_by_the_parent():
+    pending = Beside(_sleeps_then_answers, 0)
+    os.kill(pending._pid, signal.SIGKILL)
+    start = time.perf_counter()
+    with pytest.raises(AssertionError):  # computed here instead: 30 s; stop it early
+        signal.signal(signal.SIGALRM, lambda *_: (_ for _ in ()).throw(AssertionError("parent computes")))
+        signal.alarm(1)
+        try:
+            pending.result()
+        finally:
+            signal.alarm(0)
+            signal.signal(signal.SIGALRM, signal.SIG_DFL)
+    assert time.perf_counter() - start < 10
+
+
+@needs_fork
+def test_sensitivity_rows_split_over_two_processes_equal_the_serial_rows(monkeypatch):
+    rng = np.random.default_rng(11)
+    catalog = mock_catalog(rng, 0.0, samples=CONFOUNDED, offsets={"virial": 0.45}, z_spread=0.03)
+    model = make_model(catalog)
+    approx = laplace(model)
+    k_draws = rng.multivariate_normal(approx.theta, approx.covariance, 1500)[:, 0]
+    serial = sensitivity.sensitivity_rows(model, approx, k_draws, [0.0, 3.0], n_draws=400, seed=5)
+    monkeypatch.setattr(sensitivity, "PARALLEL_MIN_OBJECTS", 0)
+    split = sensitivity.sensitivity_rows(model, approx, k_draws, [0.0, 3.0], n_draws=400, seed=5,
+                                         parallel=True)
+    assert len(serial) == len(split) >= 6
+    assert split == serial
+
+
+@needs_fork
+def test_parallel_fit_gives_the_serial_summary(tmp_path, monkeypatch):
+    rng = np.random.default_rng(3)
+    catalog = mock_catalog(rng, 1.0, samples=((0.02, 150, "dynamical"), (1.2, 150, "virial")))
+    near, far = write_samples(catalog, tmp_path, ("near.csv", "far.csv"))
+    config = cosmogrow.run_config([{"name": "near", "data": near}, {"name": "far", "data": far}], seed=4)
+    data = load_data(config)
+    monkeypatch.setattr(sensitivity, "PARALLEL_MIN_OBJECTS", 0)
+    serial = run_fit(config, data).summary
+    parallel = run_fit(config, data, parallel=True).summary
+    for key in ("k", "crosscheck", "sensitivity", "verdicts", "tests", "parameters"):
+        assert to_jsonable(parallel[key]) == to_jsonable(serial[key]), key
