@@ -16,7 +16,7 @@ import numpy as np
 import pytest
 
 import cosmogrow
-from cosmogrow.inference import sensitivity
+from cosmogrow.inference import fit, sensitivity
 from cosmogrow.inference.fit import load_data, run_fit
 from cosmogrow.inference.forked import Beside, can_fork
 from cosmogrow.inference.laplace import laplace
@@ -87,7 +87,7 @@ def test_sensitivity_rows_split_over_two_processes_equal_the_serial_rows(monkeyp
     approx = laplace(model)
     k_draws = rng.multivariate_normal(approx.theta, approx.covariance, 1500)[:, 0]
     serial = sensitivity.sensitivity_rows(model, approx, k_draws, [0.0, 3.0], n_draws=400, seed=5)
-    monkeypatch.setattr(sensitivity, "PARALLEL_MIN_OBJECTS", 0)
+    monkeypatch.setattr(sensitivity, "BESIDE_MIN_OBJECTS", 0)
     split = sensitivity.sensitivity_rows(model, approx, k_draws, [0.0, 3.0], n_draws=400, seed=5,
                                          parallel=True)
     assert len(serial) == len(split) >= 6
@@ -101,7 +101,8 @@ def test_parallel_fit_gives_the_serial_summary(tmp_path, monkeypatch):
     near, far = write_samples(catalog, tmp_path, ("near.csv", "far.csv"))
     config = cosmogrow.run_config([{"name": "near", "data": near}, {"name": "far", "data": far}], seed=4)
     data = load_data(config)
-    monkeypatch.setattr(sensitivity, "PARALLEL_MIN_OBJECTS", 0)
+    monkeypatch.setattr(sensitivity, "BESIDE_MIN_OBJECTS", 0)
+    monkeypatch.setattr(fit, "BESIDE_MIN_OBJECTS", 0)
     serial = run_fit(config, data).summary
     parallel = run_fit(config, data, parallel=True).summary
     for key in ("k", "crosscheck", "sensitivity", "verdicts", "tests", "parameters"):

@@ -23,7 +23,7 @@ from ..selection.compiled import SelectionSet, build_selection
 from .summary import (convergence_block, degeneracy_warnings, describe_parameters,
                       describe_samples, hypothesis_tests, offset_sensitivity)
 from .guards import identifiability, identifiability_warning, undeclared_methods_warning
-from .forked import Beside
+from .forked import BESIDE_MIN_OBJECTS, Beside
 from .information import describe_information
 from .sensitivity import common_width, offset_subject, sensitivity_rows, significance_block
 from .verdicts import headline, verdict_options, verdicts_from_rows
@@ -135,9 +135,10 @@ def run_fit(config, data: FitData, *, chain_path=None, on_check=None, selection_
     "sensitivity", "verdicts", "significance" and "crosscheck".
 
     With `parallel` (the command line sets it; forked processes are no place for a notebook's
-    threads), work that needs no result of the stages before it runs in a forked second process
-    (`inference.forked.Beside`): the cross-check while the parent finds the MAP and samples, and in
-    large catalogues half of the verdicts' profile fits. The results are those of the serial run.
+    threads) and a catalogue of at least `forked.BESIDE_MIN_OBJECTS` objects, work that needs no
+    result of the stages before it runs in a forked second process (`inference.forked.Beside`): the
+    cross-check while the parent finds the MAP and samples, and half of the verdicts' profile fits.
+    The results are those of the serial run.
 
     Returns
     -------
@@ -145,7 +146,8 @@ def run_fit(config, data: FitData, *, chain_path=None, on_check=None, selection_
     """
     timer = StageTimes() if timer is None else timer
     # needs only the catalogue: beside the MAP and the sampling, or here before the figures are drawn
-    pending = Beside(run_crosscheck, config, data.catalog, enabled=parallel)
+    pending = Beside(run_crosscheck, config, data.catalog,
+                     enabled=parallel and len(data.catalog.z) >= BESIDE_MIN_OBJECTS)
     try:
         with timer.stage("map"):
             model = build_model(config, data, selection_aware=selection_aware)

@@ -19,7 +19,7 @@ import numpy as np
 from scipy import stats
 
 from ..seeding import child_seed
-from .forked import Beside
+from .forked import BESIDE_MIN_OBJECTS, Beside
 from .laplace import find_map, laplace
 from .summary import describe_weighted, savage_dickey, wilks_sigma
 from .verdicts import WIDTH_SCALES, k_key
@@ -28,8 +28,6 @@ from .verdicts import WIDTH_SCALES, k_key
 # σ(k) shrinks as 1/√N, so fewer draws at large N keep the Monte Carlo error far below 0.05 in k.
 DRAW_BUDGET = 1_500_000
 MIN_DRAWS, MAX_DRAWS = 400, 6000
-# Catalogues from this size compute half of the sensitivity rows in a second process (when asked).
-PARALLEL_MIN_OBJECTS = 50_000
 # Student-t proposal for the importance reweighting: heavier tails than the Laplace Gaussian.
 PROPOSAL_DF = 5
 
@@ -191,7 +189,7 @@ def sensitivity_rows(model, approx, k_draws, k_refs, *, n_draws=None, seed=None,
     k_refs : sequence of float, reference k values (0, 3 and claims)
     n_draws : int, importance-sampling draws per reweighted row (default `default_draws`)
     seed : int or SeedSequence; reweighted row j draws from `seeding.child_seed(seed, j)`
-    parallel : bool, in catalogues of at least PARALLEL_MIN_OBJECTS objects compute two of the rows
+    parallel : bool, in catalogues of at least BESIDE_MIN_OBJECTS objects compute two of the rows
         in a forked process (`inference.forked.Beside`; the same rows as serially)
     timer : outputs.StageTimes, optional; receives the forked rows' seconds as work done beside
 
@@ -209,7 +207,7 @@ def sensitivity_rows(model, approx, k_draws, k_refs, *, n_draws=None, seed=None,
     if has_offsets:
         jobs.append((_unconstrained_row, (model, approx, k_refs, k_range)))
     rows = [None] * len(jobs)
-    split = parallel and len(jobs) > 1 and len(model.design.m_obs) >= PARALLEL_MIN_OBJECTS
+    split = parallel and len(jobs) > 1 and len(model.design.m_obs) >= BESIDE_MIN_OBJECTS
     # rows computed beside, in a child: the first and the last (with offsets: ⅓× and unconstrained),
     # so that the two reweighted rows, the costly ones, run one in each process
     there = [0, len(jobs) - 1] if split else []
