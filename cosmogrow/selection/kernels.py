@@ -75,8 +75,7 @@ def _strided(value, keep):
 
 
 def _contiguous(value, n):
-    a = np.ascontiguousarray(np.broadcast_to(np.asarray(value, dtype=float), (n,)))
-    return a
+    return np.ascontiguousarray(np.broadcast_to(np.asarray(value, dtype=float), (n,)))
 
 
 def _grid(out):
@@ -87,8 +86,14 @@ def _grid(out):
 
 
 def usable(*arrays, out_shape):
-    """Whether the compiled path takes these inputs (at most 2-d, floats) for an output of out_shape."""
-    return AVAILABLE and len(out_shape) <= 2 and all(np.ndim(a) <= 2 for a in arrays)
+    """Whether the compiled path takes these inputs for an output of out_shape: at most 2-d, and
+    broadcasting to exactly that shape (the loops read by strides and must not run past an array)."""
+    if not AVAILABLE or len(out_shape) > 2 or any(np.ndim(a) > 2 for a in arrays):
+        return False
+    try:
+        return np.broadcast_shapes(out_shape, *(np.shape(a) for a in arrays)) == tuple(out_shape)
+    except ValueError:
+        return False
 
 
 def log_phi(x):
@@ -103,9 +108,8 @@ class PerObject:
     """Per-object arrays of one group, contiguous, with their addresses taken once."""
 
     def __init__(self, arrays, n):
-        self.arrays = tuple(_contiguous(a, n) for a in arrays)
+        self.arrays = tuple(_contiguous(a, n) for a in arrays)  # kept alive for the addresses
         self.addresses = tuple(_address(a) for a in self.arrays)
-        self.n = n
 
 
 def cut_observed(mu, delta, var, per_object, out):

@@ -55,23 +55,28 @@ class GroupTerms:
             self.spread_free = e2 + w2[0]
         if kind == "i":
             self.obs_above = m_obs - 0.0 - lim[0]  # (m_obs - delta - l) at delta = 0
-        # the compiled loops' per-object arrays (one observed or one intrinsic cut)
-        self.compiled = None
-        if kernels.AVAILABLE:
-            n = np.shape(lim[0])[-1]
-            if kind == "o":
+        self._compiled = None
+
+    @property
+    def compiled(self):
+        """The compiled loops' per-object arrays (`kernels.PerObject`, built on first use; the
+        likelihood's whole-group terms only), or None when the kernels are not available."""
+        if self._compiled is None and kernels.AVAILABLE:
+            lim, w2 = self.lim, self.w2
+            if self.kind == "o":
                 per_object = (lim[0], self.spread_free)
-            elif kind == "i":
-                per_object = (lim[0], w2[0], m_obs, e2)
+            elif self.kind == "i":
+                per_object = (lim[0], w2[0], self.m_obs, self.e2)
             else:  # two cuts
-                per_object = (*lim, *w2, m_obs, e2)
-            self.compiled = kernels.PerObject(per_object, n)
+                per_object = (*lim, *w2, self.m_obs, self.e2)
+            self._compiled = kernels.PerObject(per_object, np.shape(lim[0])[-1])
+        return self._compiled if kernels.AVAILABLE else None
 
     def write(self, mu, delta, var, out):
         """out[...] = num - norm (see __call__); `out` holds the group's rows on its contiguous last
         axis. One compiled pass when the kernels are built (two cuts: while every correlation is
         below 0.925), numpy otherwise."""
-        if self.compiled is not None and kernels.usable(mu, delta, var, out_shape=out.shape):
+        if kernels.usable(mu, delta, var, out_shape=out.shape):
             if self.kind == "o":
                 return kernels.cut_observed(mu, delta, var, self.compiled, out)
             if self.kind == "i":
