@@ -154,13 +154,13 @@ def run_fit(config, data: FitData, *, chain_path=None, on_check=None, selection_
             approx = laplace(model)
         if not pending.forked:
             with timer.stage("crosscheck"):
-                crosscheck, _, _ = pending.result()
+                crosscheck, _ = pending.result()
         with timer.stage("sampling"):
             chain = sample_posterior(model, approx, config.sampler, seed=config.seed, chain_path=chain_path,
                                      on_check=on_check, chain_attrs=chain_attrs)
         if pending.forked:
             with timer.stage("crosscheck"):  # the wait only; its own seconds are listed beside
-                crosscheck, seconds, _ = pending.result()
+                crosscheck, seconds = pending.result()
             timer.beside("crosscheck", seconds)
     finally:
         pending.close()

@@ -96,8 +96,7 @@ class Beside:
         self._connection, self._pid = receiver, pid
 
     def result(self):
-        """(value, seconds of the call, seconds waited here for it)."""
-        start = time.perf_counter()
+        """(value, seconds the call took, in the child or here)."""
         reply = None
         if self._connection is not None:
             try:
@@ -107,10 +106,10 @@ class Beside:
             finally:
                 self.close()
         if reply is not None and reply[0] == "ok":
-            return reply[1], reply[2], time.perf_counter() - start
+            return reply[1], reply[2]
+        start = time.perf_counter()
         value = self.function(*self.args)
-        elapsed = time.perf_counter() - start
-        return value, elapsed, elapsed
+        return value, time.perf_counter() - start
 
     def close(self):
         """Stop the child (if still running) and reap it."""

@@ -217,7 +217,7 @@ def sensitivity_rows(model, approx, k_draws, k_refs, *, n_draws=None, seed=None,
             if i not in there:
                 rows[i] = function(*args)
         if there:
-            values, seconds, _ = pending.result()
+            values, seconds = pending.result()
             if timer is not None and pending.forked:
                 timer.beside("verdicts", seconds)
             for i, row in zip(there, values):
