@@ -3,10 +3,15 @@
 - `SelectionSet.bind` (parameter-free terms precomputed, correction on the corrected rows only)
   gives exactly `log_correction` on those rows, for every cut structure and with per-walker offsets;
 - the model's selection-aware likelihood equals the object-by-object one plus the correction;
+- the compiled loops computing the latent mass themselves (`from_coefficients`) give exactly the
+  correction of the model's own latent arrays, for every cut structure, form, scatter mode and
+  with method and host-type offsets, also after pickling (a spawned worker's copy);
 - the blocked, node-major bivariate orthant quadrature agrees with an independent reference,
   scipy.stats.multivariate_normal.cdf (Genz's algorithm for the bivariate normal: Genz 2004,
   Statistics and Computing 14, 251), and with the positive-correlation bounds of Slepian.
 """
+
+import pickle
 
 import numpy as np
 import pytest
@@ -17,6 +22,7 @@ from scipy.special import log_ndtr
 from cosmogrow.config import ModelOptions
 from cosmogrow.data.catalog import Catalog
 from cosmogrow.model.likelihood import CoupledGrowthModel, build_design
+from cosmogrow.selection import kernels
 from cosmogrow.selection.compiled import SelectionSet
 from cosmogrow.selection.probit import log_upper_orthant
 
@@ -79,6 +85,35 @@ def test_model_selection_likelihood_equals_per_object_sum(form):
     gaussian = -0.5 * ((d.m_obs - mu - delta) ** 2 / var + np.log(var) + np.log(2 * np.pi))
     correction = selection.log_correction(mu, delta, var_lat, d.m_obs, d.m_err)
     assert np.allclose(fast, (gaussian + correction).sum(axis=1), rtol=0, atol=1e-9)
+
+
+@pytest.mark.skipif(not kernels.AVAILABLE, reason="the compiled loops are not built")
+@pytest.mark.parametrize("far, mid", [("o", "i"), ("io", "ii"), ("oo", "i")])
+@pytest.mark.parametrize("form, scatter, hosts", [("ratio", "shared", False), ("relation", "per_sample", True)])
+def test_affine_loops_equal_latent_arrays(far, mid, form, scatter, hosts):
+    catalog = _catalog(n=700, seed=8)  # several blocks of the loops per group
+    if hosts:
+        rng = np.random.default_rng(9)
+        catalog = Catalog.from_columns(z=catalog.z, log_mbh=catalog.log_mbh, log_mbh_err=catalog.log_mbh_err,
+                                       log_mstar=catalog.log_mstar, log_mstar_err=catalog.log_mstar_err,
+                                       sample=catalog.sample, method=catalog.method,
+                                       host_type=np.where(rng.random(700) < 0.5, "quiescent", "active"))
+    options = ModelOptions(form=form, scatter=scatter)
+    selection = SelectionSet.compile({"far": SPECS[far], "mid": SPECS[mid],
+                                      "near": {"kind": "sphere_of_influence"}}, catalog, Planck18)
+    model = CoupledGrowthModel(build_design(catalog, options), options, selection=selection)
+    assert model._method_offsets and model._host_offsets == hosts
+    theta = model.initial_guess() + 3e-2 * np.random.default_rng(2).standard_normal((9, model.ndim))
+    bound = model._correction
+    arrays = model._latent(theta, model._corrected_rows, total=False)[:3]
+    fused = bound.from_coefficients(*model._coefficients(theta), fallback=lambda: arrays)
+    assert fused is not None and np.array_equal(fused, bound(*arrays))
+    copy = pickle.loads(pickle.dumps(model))
+    for (_, terms, _), affine in zip(copy._correction._parts, copy._correction._affine):
+        # the addresses handed to the loops are the copy's own arrays, not the original's
+        assert terms.compiled.addresses == tuple(a.ctypes.data for a in terms.compiled.arrays)
+        assert affine.source.s == affine._features[0][0].ctypes.data
+    assert np.array_equal(copy.log_likelihood(theta), model.log_likelihood(theta))
 
 
 def test_orthant_against_scipy_multivariate_normal():

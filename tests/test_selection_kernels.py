@@ -66,15 +66,26 @@ def test_numpy_only_switch():
     assert out.stdout.strip() == "False"
 
 
-def test_log_phi_equals_the_table_and_scipy_below_it():
-    rng = np.random.default_rng(3)
-    inside = np.concatenate([np.linspace(-40.0, 12.0, 20001), rng.normal(0.0, 6.0, 50000), [np.inf]])
-    inside = inside[inside >= -40.0]
-    assert np.array_equal(kernels.log_phi(inside), probit.log_phi(inside))
-    below = -np.logspace(np.log10(40.0001), 4, 2000)
-    assert np.allclose(kernels.log_phi(below), log_ndtr(below), rtol=1e-13, atol=0)
-    special = kernels.log_phi(np.array([np.nan, -np.inf]))
-    assert np.isnan(special[0]) and special[1] == -np.inf
+@pytest.mark.parametrize("vector", [True, False], ids=["AVX lookup if present", "portable lookup"])
+def test_log_phi_equals_the_table_and_scipy_below_it(vector):
+    chosen = kernels.vector_lookup()
+    try:
+        kernels.vector_lookup(vector and chosen)
+        rng = np.random.default_rng(3)
+        inside = np.concatenate([np.linspace(-40.0, 12.0, 20001), rng.normal(0.0, 6.0, 50001), [np.inf]])
+        inside = inside[inside >= -40.0]
+        assert np.array_equal(kernels.log_phi(inside), probit.log_phi(inside))
+        below = -np.logspace(np.log10(40.0001), 4, 2000)
+        assert np.allclose(kernels.log_phi(below), log_ndtr(below), rtol=1e-13, atol=0)
+        special = kernels.log_phi(np.array([np.nan, -np.inf]))
+        assert np.isnan(special[0]) and special[1] == -np.inf
+        mixed = np.array([0.3, np.nan, -50.0, 2.0, 11.0, -39.99, -1e3])  # in one block of four, and a tail
+        expected = np.concatenate([probit.log_phi(mixed[[0, 3, 4, 5]]), log_ndtr(mixed[[2, 6]])])
+        got = kernels.log_phi(mixed)
+        assert np.isnan(got[1])
+        assert np.allclose(got[[0, 3, 4, 5, 2, 6]], expected, rtol=1e-13, atol=0)
+    finally:
+        kernels.vector_lookup(chosen)
 
 
 @pytest.mark.parametrize("kind", ["o", "i"])
@@ -109,7 +120,8 @@ def test_two_cuts_agree_with_numpy(monkeypatch, kind, widths):
     mu, var, delta, p = _inputs(2, widths)
     compiled = GroupTerms(kind, p["lim"], p["w2"], p["m_obs"], p["e2"])
     out = np.empty((W, N))
-    assert kernels.two_cuts(kind, mu, delta, var, compiled.compiled, out)
+    source, _keep = kernels.arrays(mu, delta, var)
+    assert kernels.two_cuts(kind, source, compiled.compiled, out)
     reference = _numpy_write(monkeypatch, _numpy_terms(monkeypatch, kind, p), mu, delta, var)
     assert np.all(np.isfinite(out))
     assert np.allclose(out, reference, rtol=1e-13, atol=1e-12)
@@ -119,7 +131,8 @@ def test_two_cuts_decline_at_high_correlation(monkeypatch):
     mu, var, delta, p = _inputs(4)
     p["w2"] = (np.zeros(N), np.full(N, 1e-4))  # nearly hard cuts: correlations near 1
     compiled = GroupTerms("oo", p["lim"], p["w2"], p["m_obs"], p["e2"])
-    assert not kernels.two_cuts("oo", mu, delta, var, compiled.compiled, np.empty((W, N)))
+    source, _keep = kernels.arrays(mu, delta, var)
+    assert not kernels.two_cuts("oo", source, compiled.compiled, np.empty((W, N)))
     out = compiled.write(mu, delta, var, np.empty((W, N)))  # numpy answers instead
     assert np.array_equal(out, _numpy_write(monkeypatch, _numpy_terms(monkeypatch, "oo", p), mu, delta, var))
 

@@ -184,9 +184,13 @@ class ParameterLayout:
         label_index : ndarray of int (N,), each object's label position in the group (0: the
             zero point or no label)
         """
+        return self.offset_table(theta, kind)[:, label_index]
+
+    def offset_table(self, theta: np.ndarray, kind: str) -> np.ndarray:
+        """Offsets of every label of a group for every walker, shape (n_walkers, n_labels), column 0
+        (the zero point) 0."""
         columns = theta[:, self.group_slice(kind)]
-        with_zero = np.concatenate([np.zeros((len(theta), 1)), columns], axis=1)
-        return with_zero[:, label_index]
+        return np.concatenate([np.zeros((len(theta), 1)), columns], axis=1)
 
     # ----- bounds and conversions -------------------------------------------------------------
     def bounds(self, priors: dict) -> tuple:

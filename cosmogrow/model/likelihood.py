@@ -71,8 +71,10 @@ class CoupledGrowthModel:
         # the selection correction bound to the data, evaluated on the rows it corrects only
         self._correction = None
         if self.selection is not None and self.selection.corrects_likelihood:
-            self._correction = self.selection.bind(design.m_obs, design.m_err)
+            self._correction = self.selection.bind(design.m_obs, design.m_err, latent=self._features())
             self._corrected_rows = _Rows.of(design, self._correction.rows)
+            rows = self._correction.rows
+            self._scatter_correction = len(rows) != len(design.m_obs) or bool(np.any(rows[1:] < rows[:-1]))
         self.host_priors = dict(host_priors or {})
         self.map_start = None if map_start is None else np.array(map_start, dtype=float)
         # Without outliers the Gaussian part always goes through weighted moments; a selection
@@ -241,15 +243,41 @@ class CoupledGrowthModel:
             var = sig2_obj + rows.ev_ratio if total else None
         return mu_true, delta, var_lat, var
 
+    def _features(self):
+        """The per-object features of the latent mass as an affine function of per-walker
+        coefficients (`_coefficients`), for the compiled selection loops (selection.kernels.Affine)."""
+        d = self.design
+        return {"s": d.s_centred, "x": d.x, "e": d.s_err**2,
+                "sig2_at": d.scatter_index if len(d.scatter_names) > 1 else None,
+                "off_at": d.method_index if self._method_offsets else None,
+                "host_at": d.host_index if self._host_offsets else None}
+
+    def _coefficients(self, theta):
+        """Per walker: (alpha, beta, k_eff, beta²), the intrinsic variances and the offset tables
+        (column 0 the zero point) of `_latent`, with the same arithmetic."""
+        layout = self.layout
+        coef = np.empty((len(theta), 4))
+        coef[:, 0] = theta[:, layout.index_alpha]
+        beta = theta[:, layout.index_beta] if self.relation else 1.0
+        coef[:, 1] = beta
+        coef[:, 2] = theta[:, layout.index_k] - beta * self.gamma
+        coef[:, 3] = beta**2
+        off = layout.offset_table(theta, "method") if self._method_offsets else None
+        host = layout.offset_table(theta, "host_type") if self._host_offsets else None
+        return coef, theta[:, layout.scatter] ** 2, off, host
+
     def _selection_chunk(self, theta, batches=None):
         """Moments for the Gaussian part plus the selection correction (no outliers)."""
         log_like = self._moments.log_likelihood(theta, batches)
         if self._correction is None:
             return log_like
-        mu_true, delta, var_lat, _ = self._latent(theta, self._corrected_rows, total=False)
-        correction = self._correction(mu_true, delta, var_lat)
+        rows = self._corrected_rows
+        correction = self._correction.from_coefficients(
+            *self._coefficients(theta), fallback=lambda: self._latent(theta, rows, total=False)[:3])
+        if correction is None:
+            correction = self._correction(*self._latent(theta, rows, total=False)[:3])
         rows = self._correction.rows
-        if len(rows) != len(self.design.m_obs) or np.any(rows[1:] < rows[:-1]):
+        if self._scatter_correction:
             # summed over every object in catalogue order (zeros elsewhere), as the pinned fits were made
             every = np.zeros((len(theta), len(self.design.m_obs)))
             every[:, rows] = correction

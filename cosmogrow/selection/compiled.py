@@ -176,11 +176,12 @@ class SelectionSet:
             out[..., rows] = terms.write(pick(mu_true, rows), pick(delta, rows), pick(var_lat, rows), part)
         return out
 
-    def bind(self, m_obs, m_err) -> BoundCorrection:
+    def bind(self, m_obs, m_err, latent=None) -> BoundCorrection:
         """The correction bound to fixed data (m_obs, m_err: arrays (N,), log10 Msun and dex), with
         every parameter-free quantity precomputed: `BoundCorrection(mu, delta, var)` on its
-        `rows` equals `log_correction(...)[..., rows]`, bit for bit."""
-        return BoundCorrection(self._groups, m_obs, m_err, self.n_rows)
+        `rows` equals `log_correction(...)[..., rows]`, bit for bit. `latent`: the per-object
+        features of an affine latent mass (see `BoundCorrection.from_coefficients`), optional."""
+        return BoundCorrection(self._groups, m_obs, m_err, self.n_rows, latent=latent)
 
     def log_probability(self, mu_true, delta, var_lat, m_err, rows=None):
         """log P(S | s, z) from the black-hole-mass cuts alone (the likelihood's normaliser).

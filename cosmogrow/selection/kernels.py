@@ -3,8 +3,10 @@
 `AVAILABLE` is False when the extension was not built (no C compiler at install time) or when the
 environment sets COSMOGROW_NUMPY_SELECTION=1; callers then use their numpy code, which gives the same
 numbers (the single-cut terms bit for bit, the orthant to < 1e-12 in log P; tested) more slowly.
-Each function takes arrays of any shape that broadcasts to (rows, cols) with objects on the last
-axis, and writes into `out` (a float array whose last axis is contiguous).
+Each loop reads the latent mean, offset and variance from a source: `arrays(mu, delta, var)` (any
+shapes that broadcast to (rows, cols), objects on the last axis) or an `Affine` source (the model's
+affine latent mass computed inside the loop from per-walker coefficients); and writes into `out` (a
+float array whose last axis is contiguous).
 """
 
 import ctypes
@@ -22,6 +24,16 @@ _RULES = {order: (np.ascontiguousarray(0.5 * (nodes + 1.0)), np.ascontiguousarra
           for order, (nodes, weights) in _GAUSS_LEGENDRE.items()}
 
 
+class _Source(ctypes.Structure):
+    """cg_source of _kernels.c: three strided arrays, or (coef set) the affine latent model."""
+
+    _fields_ = [("mu", _P), ("delta", _P), ("var", _P), ("mu_r", _N), ("mu_c", _N), ("de_r", _N),
+                ("de_c", _N), ("va_r", _N), ("va_c", _N), ("coef", _P), ("coef_r", _N),
+                ("sig2", _P), ("sig2_r", _N), ("sig2_at", _P), ("off", _P), ("off_r", _N),
+                ("off_at", _P), ("host", _P), ("host_r", _N), ("host_at", _P),
+                ("s", _P), ("x", _P), ("e", _P)]
+
+
 def _load():
     if os.environ.get("COSMOGROW_NUMPY_SELECTION") == "1":
         return None
@@ -32,15 +44,17 @@ def _load():
         lib = ctypes.CDLL(spec.origin)
     except OSError:
         return None
-    arrays = (_P, _N, _N)
+    source = ctypes.POINTER(_Source)
     lib.cg_set_table.argtypes = (_P, _N, ctypes.c_double, ctypes.c_double)
     lib.cg_log_phi.argtypes = (_N, _P, _P)
-    lib.cg_cut_observed.argtypes = (_N, _N) + arrays * 3 + (_P, _P, _P, _N)
-    lib.cg_cut_intrinsic.argtypes = (_N, _N) + arrays * 3 + (_P,) * 4 + (ctypes.c_int, _P, _N)
+    lib.cg_cut_observed.argtypes = (_N, _N, source, _P, _P, _P, _N)
+    lib.cg_cut_intrinsic.argtypes = (_N, _N, source) + (_P,) * 4 + (ctypes.c_int, _P, _N)
+    lib.cg_vector_lookup.argtypes = (ctypes.c_int,)
+    lib.cg_vector_lookup.restype = ctypes.c_int
     lib.cg_set_rule.argtypes = (ctypes.c_int, ctypes.c_int, _P, _P)
     lib.cg_set_rho_limits.argtypes = (ctypes.c_double, ctypes.c_double)
     lib.cg_orthant_independent.argtypes = (_N, _P, _P, _P, ctypes.c_int, _P)
-    lib.cg_two_cuts.argtypes = (ctypes.c_int, _N, _N) + arrays * 3 + (_P,) * 7 + (_N,)
+    lib.cg_two_cuts.argtypes = (ctypes.c_int, _N, _N, source) + (_P,) * 7 + (_N,)
     for name in ("cg_set_table", "cg_log_phi", "cg_cut_observed", "cg_cut_intrinsic", "cg_set_rule",
                  "cg_set_rho_limits"):
         getattr(lib, name).restype = None
@@ -96,6 +110,13 @@ def usable(*arrays, out_shape):
         return False
 
 
+def vector_lookup(on=None):
+    """Whether log Φ's table lookup uses the hand-written AVX loop (chosen at load time when the
+    processor has AVX); `on` False / True switches to the portable loop and back (for tests).
+    Both give the same numbers."""
+    return bool(_LIB.cg_vector_lookup(-1 if on is None else int(bool(on))))
+
+
 def log_phi(x):
     """log Φ(x) of a float array, as `probit.log_phi`."""
     x = np.ascontiguousarray(x, dtype=float)
@@ -105,30 +126,100 @@ def log_phi(x):
 
 
 class PerObject:
-    """Per-object arrays of one group, contiguous, with their addresses taken once."""
+    """Per-object arrays of one group, contiguous, with their addresses taken once (and again
+    after unpickling, where the arrays live elsewhere)."""
 
     def __init__(self, arrays, n):
         self.arrays = tuple(_contiguous(a, n) for a in arrays)  # kept alive for the addresses
         self.addresses = tuple(_address(a) for a in self.arrays)
 
+    def __getstate__(self):
+        return {"arrays": self.arrays}
 
-def cut_observed(mu, delta, var, per_object, out):
+    def __setstate__(self, state):
+        self.arrays = state["arrays"]
+        self.addresses = tuple(_address(a) for a in self.arrays)
+
+
+def arrays(mu, delta, var):
+    """A source reading mu, delta and var from arrays (objects on the last axis, broadcast to the
+    output; see `usable`). Returns (source, arrays to keep alive during the call)."""
+    keep = []
+    source = _Source()
+    source.mu, source.mu_r, source.mu_c = _strided(mu, keep)
+    source.delta, source.de_r, source.de_c = _strided(delta, keep)
+    source.var, source.va_r, source.va_c = _strided(var, keep)
+    return source, keep
+
+
+class Affine:
+    """A source computing the latent mass of a group's objects inside the loops (the model's
+    affine forward model, docs/method.md#model), per walker r and object j:
+
+        mu = ((alpha_r + beta_r s_j) + host_r[host_at_j]) - k_eff_r x_j
+        delta = off_r[off_at_j],   var = sig2_r[sig2_at_j] + beta2_r e_j
+
+    Parameters
+    ----------
+    s, x, e : arrays (n,), centred host mass (dex), lever arm log10[(1+z)/(1+z_ref)], and the
+        squared host-mass error (dex²) of each object
+    sig2_at, off_at, host_at : int arrays (n,) or None, each object's column in the per-walker
+        tables of intrinsic variances, method offsets and host-type offsets (None: column 0 of
+        the variances; no offset)
+    """
+
+    def __init__(self, s, x, e, sig2_at=None, off_at=None, host_at=None):
+        n = len(s)
+        self._features = (tuple(_contiguous(a, n) for a in (s, x, e)),
+                          tuple(None if a is None else np.ascontiguousarray(a, dtype=np.int32)
+                                for a in (sig2_at, off_at, host_at)))
+        self._bind()
+
+    def __getstate__(self):
+        return {"_features": self._features}
+
+    def __setstate__(self, state):
+        self._features = state["_features"]
+        self._bind()
+
+    def _bind(self):
+        (s, x, e), (sig2_at, off_at, host_at) = self._features
+        self.source = _Source()
+        self.source.s, self.source.x, self.source.e = (_address(a) for a in (s, x, e))
+        self.source.sig2_at = None if sig2_at is None else _address(sig2_at)
+        self.source.off_at = None if off_at is None else _address(off_at)
+        self.source.host_at = None if host_at is None else _address(host_at)
+        self.has_offsets, self.has_hosts = off_at is not None, host_at is not None
+
+    def at(self, coef, sig2, off=None, host=None):
+        """The source at per-walker values: coef (rows, 4) of (alpha, beta, k_eff, beta²); tables
+        sig2 (rows, n_scatter), off and host (rows, n_labels) or None, all C-contiguous float
+        arrays (kept alive by the caller during the call). Returns a new source (so that calls from
+        several threads do not share one)."""
+        source = _Source.from_buffer_copy(self.source)
+        source.coef, source.coef_r = _address(coef), coef.strides[0] // 8
+        source.sig2, source.sig2_r = _address(sig2), sig2.strides[0] // 8
+        if self.has_offsets:
+            source.off, source.off_r = _address(off), off.strides[0] // 8
+        if self.has_hosts:
+            source.host, source.host_r = _address(host), host.strides[0] // 8
+        return source
+
+
+def cut_observed(source, per_object, out):
     """out = -log Φ((mu + (delta - lim)) / sqrt(var + spread_free)) (one observed-mass cut);
     per_object: PerObject of (lim, spread_free)."""
     rows, cols, out_r = _grid(out)
-    keep = []
-    _LIB.cg_cut_observed(rows, cols, *_strided(mu, keep), *_strided(delta, keep), *_strided(var, keep),
-                         *per_object.addresses, _address(out), out_r)
+    _LIB.cg_cut_observed(rows, cols, ctypes.byref(source), *per_object.addresses, _address(out), out_r)
     return out
 
 
-def cut_intrinsic(mu, delta, var, per_object, numerator, out):
+def cut_intrinsic(source, per_object, numerator, out):
     """out = num - log Φ((mu - lim)/sqrt(var + w2)) (one intrinsic-mass cut; see GroupTerms);
     per_object: PerObject of (lim, w2, m_obs, e2)."""
     rows, cols, out_r = _grid(out)
-    keep = []
-    _LIB.cg_cut_intrinsic(rows, cols, *_strided(mu, keep), *_strided(delta, keep), *_strided(var, keep),
-                          *per_object.addresses, int(bool(numerator)), _address(out), out_r)
+    _LIB.cg_cut_intrinsic(rows, cols, ctypes.byref(source), *per_object.addresses, int(bool(numerator)),
+                          _address(out), out_r)
     return out
 
 
@@ -147,12 +238,11 @@ def orthant_independent(h, k, rho, log_h, log_k, order):
 TWO_CUT_KINDS = {"oo": 0, "io": 1, "ii": 2}
 
 
-def two_cuts(kind, mu, delta, var, per_object, out):
+def two_cuts(kind, source, per_object, out):
     """out = log numerator - log normaliser of two cuts per object (kind "oo", "io" or "ii");
     per_object: PerObject of (lim_a, lim_b, w2a, w2b, m_obs, e2). Returns False (out undefined)
     when a correlation reaches 0.925, where the caller's numpy code must be used."""
     rows, cols, out_r = _grid(out)
-    keep = []
-    status = _LIB.cg_two_cuts(TWO_CUT_KINDS[kind], rows, cols, *_strided(mu, keep), *_strided(delta, keep),
-                              *_strided(var, keep), *per_object.addresses, _address(out), out_r)
+    status = _LIB.cg_two_cuts(TWO_CUT_KINDS[kind], rows, cols, ctypes.byref(source), *per_object.addresses,
+                              _address(out), out_r)
     return status == 0

@@ -7,7 +7,9 @@ alone (e.g. m_err² + w² of an observed cut, m_obs - m_lim of an intrinsic one)
 evaluation only does the arithmetic that depends on the parameters (docs/method.md#selection).
 `BoundCorrection` is the correction of a whole catalogue bound to its data once: the model computes
 latent means and variances on the corrected rows only (`rows`) and calls it for every parameter
-vector.
+vector, or, when the latent mass is affine in per-walker coefficients (the model's forward model)
+and the compiled loops are built, hands over only those coefficients (`from_coefficients`): the
+loops then compute the latent mass object by object, without (walkers x objects) arrays.
 
 The arithmetic is written so that each element is computed in the same order as the direct
 evaluation of `SelectionSet.log_correction` (identical results, bit for bit).
@@ -77,15 +79,23 @@ class GroupTerms:
         axis. One compiled pass when the kernels are built (two cuts: while every correlation is
         below 0.925), numpy otherwise."""
         if kernels.usable(mu, delta, var, out_shape=out.shape):
-            if self.kind == "o":
-                return kernels.cut_observed(mu, delta, var, self.compiled, out)
-            if self.kind == "i":
-                return kernels.cut_intrinsic(mu, delta, var, self.compiled, True, out)
-            if kernels.two_cuts(self.kind, mu, delta, var, self.compiled, out):
+            source, _keep = kernels.arrays(mu, delta, var)
+            if self.write_from(source, out):
                 return out
         num, norm = self(mu, delta, var)
         np.subtract(num, norm, out=out)
         return out
+
+    def write_from(self, source, out):
+        """out[...] = num - norm by the compiled loops reading a `kernels` source (2-d `out` of the
+        group's rows); False when they decline (two cuts with a correlation >= 0.925)."""
+        if self.kind == "o":
+            kernels.cut_observed(source, self.compiled, out)
+        elif self.kind == "i":
+            kernels.cut_intrinsic(source, self.compiled, True, out)
+        else:
+            return kernels.two_cuts(self.kind, source, self.compiled, out)
+        return True
 
     def __call__(self, mu, delta, var, numerator=True):
         """Parameters: mu (latent mean, log10 Msun), delta (method offset, dex, or 0.0), var
@@ -167,14 +177,21 @@ class BoundCorrection:
     _BLOCK_ELEMENTS elements: the temporaries then stay in the cache and in the heap allocator's
     reused memory (fresh multi-page temporaries cost page faults that exceed the arithmetic).
 
+    Parameters
+    ----------
+    groups : the selection set's groups; m_obs, m_err : arrays (n_rows,), log10 Msun and dex
+    latent : dict, optional, per-object features of the affine latent mass on every catalogue row:
+        s, x, e (arrays (n_rows,)) and sig2_at, off_at, host_at (int arrays or None); see
+        `kernels.Affine`
+
     Attributes
     ----------
     rows : ndarray of int, the catalogue rows with a black-hole-mass cut, group after group; the
         arrays passed to a call hold these rows (in this order) on their last axis
     """
 
-    def __init__(self, groups, m_obs, m_err, n_rows):
-        parts, rows, start = [], [], 0
+    def __init__(self, groups, m_obs, m_err, n_rows, latent=None):
+        parts, rows, start, affine = [], [], 0, []
         for group in groups:
             index = np.arange(n_rows) if isinstance(group.rows, slice) else np.asarray(group.rows)
             lim, w2 = group.lim, group.w2
@@ -191,10 +208,39 @@ class BoundCorrection:
                                           _cut(m_obs_g, cut), _cut(e2, cut))))
             parts.append((slice(start, start + len(index)),
                           GroupTerms(group.kind, lim, w2, m_obs_g, e2), blocks))
+            if latent is not None:
+                affine.append(kernels.Affine(**{key: None if value is None else np.asarray(value)[index]
+                                                for key, value in latent.items()}))
             rows.append(index)
             start += len(index)
         self.rows = np.concatenate(rows) if rows else np.zeros(0, dtype=np.intp)
         self._parts = parts
+        self._affine = affine if latent is not None else None
+
+    def from_coefficients(self, coef, sig2, off=None, host=None, fallback=None):
+        """log correction per object on `rows`, shape (walkers, len(rows)), from the per-walker
+        coefficients of the affine latent mass (bit for bit `self(*fallback())`); None when the
+        compiled loops are not built or no `latent` features were bound.
+
+        Parameters
+        ----------
+        coef : ndarray (walkers, 4), C-contiguous: alpha, beta, k_eff, beta² of each walker
+        sig2 : ndarray (walkers, n), intrinsic variance per scatter group (dex²)
+        off, host : ndarray (walkers, n_labels) or None, method and host-type offsets by label
+            (column 0 the zero point)
+        fallback : callable returning (mu, delta, var) on `rows`, for a group the loops decline
+            (two cuts with a correlation >= 0.925)
+        """
+        if self._affine is None or not kernels.AVAILABLE:
+            return None
+        out = np.empty((len(coef), len(self.rows)))
+        arrays = None
+        for (cols, terms, _), affine in zip(self._parts, self._affine):
+            if not terms.write_from(affine.at(coef, sig2, off, host), out[:, cols]):
+                arrays = arrays or fallback()
+                mu, delta, var = arrays
+                terms.write(mu[..., cols], _columns(delta, cols), var[..., cols], out[:, cols])
+        return out
 
     def __call__(self, mu, delta, var):
         """log correction per object on `rows` (shape of the broadcast inputs, objects last).
