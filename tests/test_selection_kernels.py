@@ -146,3 +146,17 @@ def test_compiled_orthant_against_scipy():
     theirs = np.array([stats.multivariate_normal(mean=[0, 0], cov=[[1, r], [r, 1]]).cdf([-a, -b])
                        for a, b, r in zip(h, k, rho)])
     assert np.allclose(ours, np.log(theirs), rtol=0, atol=2e-6)
+
+
+def test_affine_source_refuses_tables_it_would_read_past():
+    affine = kernels.Affine(np.zeros(5), np.zeros(5), np.zeros(5), sig2_at=np.array([0, 1, 2, 1, 0]))
+    coef = np.ones((3, 4))
+    affine.at(coef, np.ones((3, 3)))  # three scatter columns: fine
+    with pytest.raises(ValueError, match="fewer columns"):
+        affine.at(coef, np.ones((3, 2)))
+    with pytest.raises(ValueError, match="one row per walker"):
+        affine.at(coef, np.ones((2, 3)))
+    with pytest.raises(ValueError, match="one row per walker"):
+        affine.at(coef, np.ones((3, 3), dtype=np.float32))
+    with pytest.raises(ValueError, match=">= 0"):
+        kernels.Affine(np.zeros(2), np.zeros(2), np.zeros(2), off_at=np.array([0, -1]))

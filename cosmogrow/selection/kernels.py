@@ -173,14 +173,17 @@ class Affine:
         self._features = (tuple(_contiguous(a, n) for a in (s, x, e)),
                           tuple(None if a is None else np.ascontiguousarray(a, dtype=np.int32)
                                 for a in (sig2_at, off_at, host_at)))
+        # the table columns each index needs (a narrower table would be read past its end)
+        if any(a is not None and a.size and a.min() < 0 for a in self._features[1]):
+            raise ValueError("Affine: table indexes must be >= 0")
+        self._columns = tuple(1 if a is None else int(a.max(initial=0)) + 1 for a in self._features[1])
         self._bind()
 
     def __getstate__(self):
         return {"_features": self._features}
 
     def __setstate__(self, state):
-        self._features = state["_features"]
-        self._bind()
+        self.__init__(*state["_features"][0], *state["_features"][1])
 
     def _bind(self):
         (s, x, e), (sig2_at, off_at, host_at) = self._features
@@ -196,6 +199,16 @@ class Affine:
         sig2 (rows, n_scatter), off and host (rows, n_labels) or None, all C-contiguous float
         arrays (kept alive by the caller during the call). Returns a new source (so that calls from
         several threads do not share one)."""
+        rows = len(coef)
+        tables = (sig2, off if self.has_offsets else None, host if self.has_hosts else None)
+        for a in (coef,) + tables:
+            if a is not None and not (a.dtype == np.float64 and a.ndim == 2 and len(a) == rows
+                                      and a.flags.c_contiguous):
+                raise ValueError("Affine.at: every table must be a C-contiguous float array with one "
+                                 "row per walker")
+        if coef.shape[1] != 4 or any(a is not None and a.shape[1] < columns
+                                     for a, columns in zip(tables, self._columns)):
+            raise ValueError("Affine.at: a table has fewer columns than its indexes need")
         source = _Source.from_buffer_copy(self.source)
         source.coef, source.coef_r = _address(coef), coef.strides[0] // 8
         source.sig2, source.sig2_r = _address(sig2), sig2.strides[0] // 8

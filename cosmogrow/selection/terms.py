@@ -233,6 +233,8 @@ class BoundCorrection:
         """
         if self._affine is None or not kernels.AVAILABLE:
             return None
+        coef, sig2 = np.ascontiguousarray(coef, dtype=float), np.ascontiguousarray(sig2, dtype=float)
+        off, host = (None if a is None else np.ascontiguousarray(a, dtype=float) for a in (off, host))
         out = np.empty((len(coef), len(self.rows)))
         arrays = None
         for (cols, terms, _), affine in zip(self._parts, self._affine):
