@@ -4,8 +4,11 @@
   in the parent; when the child fails or is killed, the parent computes the value itself, so an
   error surfaces where it would have serially;
 - the sensitivity rows split over two processes equal the serial rows exactly;
+- `Halves` (half of every sampler call in a child) returns the values of two separate calls, with
+  or without the child; a child whose call fails, or that is killed, is replaced by the parent;
 - `run_fit(parallel=True)` (the command line's setting) gives the serial fit's summary: the
-  cross-check computed beside the sampling, the rows, verdicts and k identical.
+  cross-check computed beside the sampling, half of the walkers evaluated in a child, the rows,
+  verdicts and k identical.
 """
 
 import os
@@ -16,9 +19,9 @@ import numpy as np
 import pytest
 
 import cosmogrow
-from cosmogrow.inference import fit, sensitivity
+from cosmogrow.inference import fit, k_estimate, sensitivity
 from cosmogrow.inference.fit import load_data, run_fit
-from cosmogrow.inference.forked import Beside, can_fork
+from cosmogrow.inference.forked import Beside, Halves, can_fork
 from cosmogrow.inference.laplace import laplace
 from cosmogrow.outputs import to_jsonable
 
@@ -91,6 +94,51 @@ def test_sensitivity_rows_split_over_two_processes_equal_the_serial_rows(monkeyp
     assert split == serial
 
 
+class _Recorder:
+    """A vectorised function whose value of a row depends on the whole call (its first row and its
+    size), so that a call split differently would show; optionally failing in a forked child."""
+
+    def __init__(self, fail_in_child=False):
+        self.parent, self.fail_in_child = os.getpid(), fail_in_child
+
+    def __call__(self, theta):
+        if self.fail_in_child and os.getpid() != self.parent:
+            raise ValueError("fails in the child")
+        return theta[:, 0] * 10.0 + theta[0, 1] + len(theta)
+
+
+@pytest.mark.parametrize("rows", [1, 2, 5, 16])
+def test_halves_equal_two_separate_calls(rows):
+    theta = np.random.default_rng(rows).normal(size=(rows, 3))
+    function = _Recorder()
+    cut = (rows + 1) // 2
+    expected = np.concatenate([function(theta[:cut])] + ([function(theta[cut:])] if rows > cut else []))
+    with Halves(function, 3, enabled=False) as here:
+        assert not here.forked
+        assert np.array_equal(here(theta), expected)
+    if can_fork():
+        with Halves(function, 3) as beside:
+            assert beside.forked
+            for _ in range(3):  # the child serves call after call
+                assert np.array_equal(beside(theta), expected)
+            assert beside.forked
+
+
+@needs_fork
+def test_halves_child_that_fails_or_dies_is_replaced_by_the_parent():
+    theta = np.arange(12.0).reshape(4, 3)
+    expected = Halves(_Recorder(), 3, enabled=False)(theta)
+    failing = Halves(_Recorder(fail_in_child=True), 3)
+    assert failing.forked
+    assert np.array_equal(failing(theta), expected)  # computed here after the child's failure
+    assert not failing.forked
+    killed = Halves(_Recorder(), 3)
+    os.kill(killed._pid, signal.SIGKILL)
+    start = time.perf_counter()
+    assert np.array_equal(killed(theta), expected)
+    assert not killed.forked and time.perf_counter() - start < 10
+
+
 @needs_fork
 def test_parallel_fit_gives_the_serial_summary(tmp_path, monkeypatch):
     rng = np.random.default_rng(3)
@@ -100,6 +148,7 @@ def test_parallel_fit_gives_the_serial_summary(tmp_path, monkeypatch):
     data = load_data(config)
     monkeypatch.setattr(sensitivity, "BESIDE_MIN_OBJECTS", 0)
     monkeypatch.setattr(fit, "BESIDE_MIN_OBJECTS", 0)
+    monkeypatch.setattr(k_estimate, "HALVES_MIN_OBJECTS", 0)
     serial = run_fit(config, data).summary
     parallel = run_fit(config, data, parallel=True).summary
     for key in ("k", "crosscheck", "sensitivity", "verdicts", "tests", "parameters"):

@@ -137,8 +137,9 @@ def run_fit(config, data: FitData, *, chain_path=None, on_check=None, selection_
     With `parallel` (the command line sets it; forked processes are no place for a notebook's
     threads) and a catalogue of at least `forked.BESIDE_MIN_OBJECTS` objects, work that needs no
     result of the stages before it runs in a forked second process (`inference.forked.Beside`): the
-    cross-check while the parent finds the MAP and samples, and half of the verdicts' profile fits.
-    The results are those of the serial run.
+    cross-check while the parent finds the MAP and samples, and half of the verdicts' profile fits;
+    from `forked.HALVES_MIN_OBJECTS` objects a second process evaluates half of the walkers of every
+    sampler step (`forked.Halves`). The results are those of the serial run.
 
     Returns
     -------
@@ -157,7 +158,7 @@ def run_fit(config, data: FitData, *, chain_path=None, on_check=None, selection_
                 crosscheck, _ = pending.result()
         with timer.stage("sampling"):
             chain = sample_posterior(model, approx, config.sampler, seed=config.seed, chain_path=chain_path,
-                                     on_check=on_check, chain_attrs=chain_attrs)
+                                     on_check=on_check, chain_attrs=chain_attrs, parallel=parallel)
         if pending.forked:
             with timer.stage("crosscheck"):  # the wait only; its own seconds are listed beside
                 crosscheck, seconds = pending.result()

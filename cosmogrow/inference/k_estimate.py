@@ -14,6 +14,7 @@ from scipy import stats
 from ..config import SamplerOptions
 from ..errors import ConfigError
 from ..seeding import child_seeds, make_rng
+from .forked import HALVES_MIN_OBJECTS, Halves
 from .importance import importance_posterior
 from .laplace import LaplaceResult, gradient, laplace, start_walkers
 from .mcmc import ChainResult, default_walkers, run_ensemble
@@ -71,7 +72,7 @@ class KEstimate:
 
 def sample_posterior(model, approx: LaplaceResult, sampler: SamplerOptions, *, seed=None,
                      max_steps: int | None = None, chain_path=None, on_check=None,
-                     chain_attrs: dict | None = None) -> ChainResult:
+                     chain_attrs: dict | None = None, parallel: bool = False) -> ChainResult:
     """The emcee run of `cosmogrow fit`: walkers drawn from the Laplace approximation.
 
     Parameters
@@ -82,14 +83,23 @@ def sample_posterior(model, approx: LaplaceResult, sampler: SamplerOptions, *, s
     seed : int or SeedSequence; child 0 seeds the walkers, child 1 the sampler
     max_steps : int, optional; overrides ``sampler.max_steps``
     chain_path, on_check, chain_attrs : see `inference.mcmc.run_ensemble`
+    parallel : bool; from `forked.HALVES_MIN_OBJECTS` objects each half-ensemble is evaluated in two
+        calls (`forked.Halves`), the second in a forked child when True (the same chain either way)
     """
     walker_seed, sampler_seed = child_seeds(seed, 2)
     start = start_walkers(model, approx, default_walkers(model.ndim, sampler.walkers), make_rng(walker_seed))
-    return run_ensemble(model.log_prob, start,
-                        max_steps=int(sampler.max_steps if max_steps is None else max_steps),
-                        autocorr_factor=sampler.autocorr_factor, check_every=sampler.check_every,
-                        chain_path=chain_path, seed=sampler_seed, on_check=on_check,
-                        chain_attrs=chain_attrs)
+    log_prob = model.log_prob
+    if len(model.design.m_obs) >= HALVES_MIN_OBJECTS:  # the same numbers with or without a child
+        log_prob = Halves(model.log_prob, model.ndim, enabled=parallel)
+    try:
+        return run_ensemble(log_prob, start,
+                            max_steps=int(sampler.max_steps if max_steps is None else max_steps),
+                            autocorr_factor=sampler.autocorr_factor, check_every=sampler.check_every,
+                            chain_path=chain_path, seed=sampler_seed, on_check=on_check,
+                            chain_attrs=chain_attrs)
+    finally:
+        if isinstance(log_prob, Halves):
+            log_prob.close()
 
 
 def estimate_k(model, *, mode: str = "fast", sampler: SamplerOptions = SamplerOptions(), seed=None,
