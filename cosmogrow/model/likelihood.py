@@ -271,11 +271,11 @@ class CoupledGrowthModel:
         log_like = self._moments.log_likelihood(theta, batches)
         if self._correction is None:
             return log_like
-        rows = self._corrected_rows
+        corrected = self._corrected_rows
         correction = self._correction.from_coefficients(
-            *self._coefficients(theta), fallback=lambda: self._latent(theta, rows, total=False)[:3])
-        if correction is None:
-            correction = self._correction(*self._latent(theta, rows, total=False)[:3])
+            *self._coefficients(theta), fallback=lambda: self._latent(theta, corrected, total=False)[:3])
+        if correction is None:  # the compiled loops are not built: numpy on the latent arrays
+            correction = self._correction(*self._latent(theta, corrected, total=False)[:3])
         rows = self._correction.rows
         if self._scatter_correction:
             # summed over every object in catalogue order (zeros elsewhere), as the pinned fits were made
