@@ -202,7 +202,8 @@ def sensitivity_rows(model, approx, k_draws, k_refs, *, n_draws=None, seed=None,
     k_range = tuple(model.priors["k"])
     has_offsets = offset_constraints(model)[0].size > 0
     scales = WIDTH_SCALES if has_offsets else (1.0,)
-    jobs = [(_scale_row, (model, approx, k_draws, k_refs, scale, n_draws, child_seed(seed, j)))
+    setting = "offset_width_scale" if has_offsets else "as_configured"
+    jobs = [(_scale_row, (model, approx, k_draws, k_refs, setting, scale, n_draws, child_seed(seed, j)))
             for j, scale in enumerate(scales)]
     if has_offsets:
         jobs.append((_unconstrained_row, (model, approx, k_refs, k_range)))
@@ -233,10 +234,9 @@ def _run_jobs(jobs):
     return [function(*args) for function, args in jobs]
 
 
-def _scale_row(model, approx, k_draws, k_refs, scale, n_draws, seed):
+def _scale_row(model, approx, k_draws, k_refs, setting, scale, n_draws, seed):
     """The row with the offset constraints at `scale` times their widths (1.0: the chain itself)."""
     k_range = tuple(model.priors["k"])
-    has_offsets = offset_constraints(model)[0].size > 0
     best, sigmas = profile_significances(ConstrainedLikelihood(model, scale), k_refs, approx.theta,
                                          approx.covariance)
     if scale == 1.0:
@@ -250,7 +250,6 @@ def _scale_row(model, approx, k_draws, k_refs, scale, n_draws, seed):
         k = describe_weighted(draws[:, model.index_k], weights)
         bayes = savage_dickey(draws[:, model.index_k], k_range, weights=weights)["value"]
         method = "Laplace + importance reweighting"
-    setting = "offset_width_scale" if has_offsets else "as_configured"
     return _row(setting, scale, offset_label(model, scale), k, sigmas, bayes, k_range, method, ess)
 
 

@@ -173,9 +173,9 @@ class Affine:
         self._features = (tuple(_contiguous(a, n) for a in (s, x, e)),
                           tuple(None if a is None else np.ascontiguousarray(a, dtype=np.int32)
                                 for a in (sig2_at, off_at, host_at)))
-        # the table columns each index needs (a narrower table would be read past its end)
         if any(a is not None and a.size and a.min() < 0 for a in self._features[1]):
             raise ValueError("Affine: table indexes must be >= 0")
+        # the table columns each index needs (a narrower table would be read past its end)
         self._columns = tuple(1 if a is None else int(a.max(initial=0)) + 1 for a in self._features[1])
         self._bind()
 
